@@ -1,0 +1,50 @@
+#pragma once
+// EndWindows keeps the first and the last `window` samples of an open segment
+// so that its start and end output can be estimated by a straight-line fit
+// (less noisy than one reading, and it yields the local rate needed to
+// estimate what a following dead time loses). Fixed memory per channel.
+#include <cstddef>
+#include <cstdint>
+#include <vector>
+
+#include "daemon/chain/linear_fit.hpp"
+
+namespace accrue::chain {
+
+struct EndEstimate {
+  double value_v = 0.0;
+  double value_se_v = 0.0;
+  double rate_v_per_s = 0.0;
+  double rate_se_v_per_s = 0.0;
+};
+
+class EndWindows {
+ public:
+  explicit EndWindows(std::size_t window);
+  void clear();
+  void add(std::uint64_t index, double volts);
+  bool empty() const { return count_ == 0; }
+  std::uint64_t count() const { return count_; }
+  std::uint64_t first_index() const { return first_index_; }
+  std::uint64_t last_index() const { return last_index_; }
+  // Fitted output and rate at the first / last sample; period converts index to seconds.
+  EndEstimate start(double period_s) const;
+  EndEstimate end(double period_s) const;
+
+ private:
+  struct Point {
+    std::uint64_t index;
+    double volts;
+  };
+  static EndEstimate fit_at(const std::vector<Point>& points, std::size_t begin, std::size_t n, std::uint64_t at,
+                            double period_s);
+  std::size_t window_;
+  std::vector<Point> head_;
+  std::vector<Point> tail_;  // ring buffer
+  std::size_t tail_next_ = 0;
+  std::uint64_t count_ = 0;
+  std::uint64_t first_index_ = 0;
+  std::uint64_t last_index_ = 0;
+};
+
+}  // namespace accrue::chain

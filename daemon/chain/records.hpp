@@ -1,0 +1,99 @@
+#pragma once
+// Values the measurement chain produces, handed downstream (storage, API).
+// All voltages are integrator output volts; quantities are in the channel's SI
+// unit (Calibration::unit()). Plain data, no behaviour.
+#include <cstdint>
+#include <vector>
+
+namespace accrue::chain {
+
+namespace segment_flag {
+inline constexpr std::uint32_t clipped = 0x01;        // output reached the clip level: delta is a lower bound
+inline constexpr std::uint32_t gap_estimated = 0x02;  // the dead time before it is an estimate from rates
+inline constexpr std::uint32_t no_baseline = 0x04;    // no drift fit was available: drift not removed
+inline constexpr std::uint32_t provisional = 0x08;    // still open: values up to the last sample seen
+}  // namespace segment_flag
+
+struct BaselineRecord {
+  std::uint32_t ordinal = 0;  // 1, 2, ... within the run
+  std::uint64_t first_index = 0;
+  std::uint64_t last_index = 0;
+  std::uint64_t samples = 0;
+  double intercept_v = 0.0;  // at the window's mean time
+  double slope_v_per_s = 0.0;
+  double slope_se_v_per_s = 0.0;
+  double residual_rms_v = 0.0;
+};
+
+struct SegmentRecord {
+  std::uint32_t ordinal = 0;  // 1, 2, ... within the run
+  std::uint64_t first_index = 0;
+  std::uint64_t last_index = 0;
+  double start_v = 0.0;       // fitted output at first_index (pedestal plus what settled in)
+  double end_v = 0.0;         // fitted output at last_index
+  double drift_v = 0.0;       // baseline slope * segment length, subtracted
+  double gap_before_v = 0.0;  // drift-corrected estimate of the output change lost in the dead time before
+  double gap_before_u_v = 0.0;
+  double end_points_u_v = 0.0;  // standard uncertainty of end_v - start_v from the end fits
+  double quantity = 0.0;        // (end_v - start_v - drift_v + gap_before_v) * quantity_per_volt
+  std::uint32_t baseline_ordinal = 0;  // 0: none
+  std::uint32_t flags = 0;
+  double total_after = 0.0;  // running total including this segment
+  double total_u_after = 0.0;
+};
+
+struct SeriesPoint {
+  std::uint64_t first_index = 0;
+  std::uint32_t samples = 0;
+  double min_v = 0.0;
+  double max_v = 0.0;
+  double mean_v = 0.0;
+  double last_v = 0.0;
+  double total = 0.0;  // running total at the bucket's last sample
+  double total_u = 0.0;
+};
+
+// Everything a restart needs to continue a total exactly where it was.
+struct ChainState {
+  std::uint64_t last_index = 0;
+  double total_v = 0.0;  // drift-corrected output change, summed over segments and gaps
+  double end_points_var_v2 = 0.0;
+  double gap_var_v2 = 0.0;
+  double closed_drift_var_v2 = 0.0;  // sum over finished baselines of (se * span)^2
+  bool has_baseline = false;
+  double slope_v_per_s = 0.0;
+  double slope_se_v_per_s = 0.0;
+  double drift_span_s = 0.0;  // time the current baseline has been applied over
+  std::uint32_t baseline_ordinal = 0;
+  bool has_previous_end = false;
+  std::uint64_t previous_end_index = 0;
+  double previous_end_rate_v_per_s = 0.0;
+  double previous_end_rate_se = 0.0;
+  std::uint32_t segments = 0;
+  std::uint32_t flags = 0;  // union of segment flags so far
+  // For contrast only: segment deltas summed with no drift removal and no
+  // dead-time estimates (what stitching alone would report).
+  double stitched_uncorrected_v = 0.0;
+};
+
+struct TotalSnapshot {
+  std::uint64_t last_index = 0;
+  double total = 0.0;
+  double std_uncertainty = 0.0;  // k = 1
+  std::uint32_t segments = 0;
+  std::uint32_t flags = 0;
+  ChainState state;  // the state as if the open segment were closed at last_index
+};
+
+struct ChainOutput {
+  std::vector<SeriesPoint> series;
+  std::vector<SegmentRecord> segments;
+  std::vector<BaselineRecord> baselines;
+  void clear() {
+    series.clear();
+    segments.clear();
+    baselines.clear();
+  }
+};
+
+}  // namespace accrue::chain

@@ -1,0 +1,263 @@
+#include "daemon/ingest.hpp"
+
+#include "protocol/byte_order.hpp"
+
+namespace accrue::daemon {
+
+using protocol::BoardIdentity;
+
+Ingest::Ingest(const DaemonConfig& config, storage::Writer& writer, Logger& log, Clock clock)
+    : config_(config), writer_(writer), log_(log), clock_(std::move(clock)) {
+  std::int64_t id = 1;
+  if (storage::Status s = writer_.next_run_id(id); s.ok()) next_run_id_ = id;
+}
+
+void Ingest::set_resume_point(std::optional<storage::RunInfo> run, std::vector<storage::CheckpointRow> checkpoints) {
+  resume_run_ = std::move(run);
+  resume_checkpoints_ = std::move(checkpoints);
+  for (const auto& c : resume_checkpoints_) carried_[c.channel] = c.state;
+}
+
+void Ingest::event(std::string kind, std::string detail, std::optional<std::uint64_t> index, std::optional<int> channel) {
+  storage::EventRow e;
+  if (run_) e.run_id = run_->run_id;
+  e.channel = channel;
+  e.sample_index = index;
+  e.kind = std::move(kind);
+  e.detail = std::move(detail);
+  e.host_unix = clock_();
+  batch_.events.push_back(std::move(e));
+}
+
+void Ingest::on_bytes(std::span<const std::uint8_t> bytes, double receive_unix) {
+  messages_.clear();
+  decoder_.feed(bytes, messages_);
+  for (const auto& m : messages_) handle(m, receive_unix);
+}
+
+void Ingest::on_link_lost(const std::string& why) {
+  // A pulled cable does not end the run: the board may still be integrating.
+  decoder_.reset();
+  event("link_lost", why);
+}
+
+void Ingest::handle(const protocol::Message& m, double receive_unix) {
+  if (auto* id = std::get_if<BoardIdentity>(&m)) return on_identity(*id, receive_unix);
+  if (auto* b = std::get_if<protocol::SampleBlock>(&m)) return on_block(*b, receive_unix);
+  if (auto* e = std::get_if<protocol::BoardEvent>(&m)) return on_event(*e, receive_unix);
+  // Acks and echoed commands are not part of the data path.
+}
+
+void Ingest::on_identity(const BoardIdentity& id, double receive_unix) {
+  if (identity_ && *identity_ == id) return;  // periodic repeat
+  if (identity_) {
+    log_.notice("board identity changed: new board session");
+    end_run("identity changed");
+  }
+  identity_ = id;
+  (void)receive_unix;
+}
+
+chain::Calibration Ingest::calibration_for(int channel, const BoardIdentity& id) const {
+  chain::Calibration cal;
+  cal.adc.bits = id.adc_bits;
+  cal.adc.full_scale_v = id.full_scale_v;
+  cal.adc.bipolar = id.capabilities & protocol::capability_bit::bipolar_adc;
+  cal.front_end.r1_ohm = id.r1_ohm;
+  cal.front_end.c_farad = id.c_farad > 0 ? id.c_farad : 1e-9;
+  cal.front_end.r2_ohm = id.r2_ohm;
+  if (auto it = config_.channels.find(channel); it != config_.channels.end()) {
+    const ChannelConfig& c = it->second;
+    cal.sensor = c.sensor;
+    if (c.c_farad) cal.front_end.c_farad = *c.c_farad;
+    if (c.r1_ohm) cal.front_end.r1_ohm = *c.r1_ohm;
+    if (c.r2_ohm) cal.front_end.r2_ohm = *c.r2_ohm;
+    if (c.gain) cal.adc.gain = *c.gain;
+    if (c.zero_code) cal.adc.zero_code = *c.zero_code;
+    cal.front_end.inverting = c.inverting;
+  }
+  return cal;
+}
+
+void Ingest::start_run(const BoardIdentity& id, double receive_unix, std::optional<std::uint64_t> first_index) {
+  Run run;
+  run.board = id;
+  bool resumed = false;
+  if (resume_run_ && resume_run_->ended_utc.empty() && resume_run_->board_serial == std::int64_t(id.board_serial) &&
+      first_index) {
+    // Continue the run the daemon was logging before it stopped, if the board's
+    // sample index has moved on from every stored checkpoint.
+    resumed = true;
+    for (const auto& c : resume_checkpoints_)
+      if (c.run_id != resume_run_->run_id || c.last_index >= *first_index) resumed = false;
+  }
+  if (resumed) {
+    run.run_id = resume_run_->run_id;
+    ++counters_.runs_resumed;
+    log_.notice("resuming run " + std::to_string(run.run_id));
+  } else {
+    run.run_id = next_run_id_++;
+    ++counters_.runs_started;
+    storage::RunStart rs;
+    rs.run_id = run.run_id;
+    rs.board = id;
+    rs.started_unix = clock_();
+    rs.utc_at_index0 = receive_unix - double(first_index.value_or(0)) * id.sample_period_s;
+    batch_.run_start = rs;
+    log_.info("run " + std::to_string(run.run_id) + " started: board " + std::to_string(id.board_serial) + ", " +
+              std::to_string(id.channel_count) + " channel(s)");
+  }
+  resume_run_.reset();
+  chain::ChainSettings settings;
+  settings.sample_period_s = id.sample_period_s;
+  settings.settle_s = config_.settle_s;
+  settings.end_window = std::size_t(config_.end_window);
+  settings.series_interval_s = config_.series_interval_s;
+  for (int c = 0; c < id.channel_count; ++c) {
+    chain::Calibration cal = calibration_for(c, id);
+    if (storage::Status s = writer_.ensure_calibration(c, cal); !s.ok())
+      log_.error("channel " + std::to_string(c) + ": cannot record calibration: " + s.message);
+    auto chain = std::make_unique<chain::ChannelChain>(cal, settings);
+    if (auto it = carried_.find(c); it != carried_.end()) {
+      chain::ChainState state = it->second;
+      if (!resumed) {
+        // A new board session: the total carries on, but the dead time between
+        // the sessions cannot be estimated from rates across a reboot.
+        state.has_previous_end = false;
+        state.last_index = 0;
+      }
+      chain->resume(state);
+    }
+    run.chains.push_back(std::move(chain));
+    storage::ChannelRows rows;
+    rows.channel = c;
+    rows.run_id = run.run_id;
+    rows.calibration_id = cal.id;
+    run.rows.push_back(std::move(rows));
+  }
+  run_ = std::move(run);
+  if (resumed) event("run_resumed", "daemon restart", first_index);
+}
+
+void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
+  if (!identity_) {
+    counters_.samples_before_identity += b.samples_per_channel;
+    return;
+  }
+  if (b.channel_count != identity_->channel_count) {
+    ++counters_.wrong_shape_blocks;
+    return;
+  }
+  if (run_ && run_->any_samples && b.first_index < run_->next_index) {
+    log_.notice("sample index went back from " + std::to_string(run_->next_index) + " to " +
+                std::to_string(b.first_index) + ": board rebooted");
+    end_run("board rebooted");
+  }
+  if (!run_) start_run(*identity_, receive_unix, b.first_index);
+  Run& run = *run_;
+  if (run.any_samples && b.first_index > run.next_index) {
+    const std::uint64_t missing = b.first_index - run.next_index;
+    ++counters_.gaps;
+    counters_.missing_samples += missing;
+    event("sample_gap", "missing_samples=" + std::to_string(missing), run.next_index);
+  }
+  run.any_samples = true;
+  run.next_index = b.first_index + b.samples_per_channel;
+  ++counters_.blocks;
+  counters_.samples += std::uint64_t(b.samples_per_channel) * b.channel_count;
+
+  storage::RawBlockRow raw;
+  raw.run_id = run.run_id;
+  raw.first_index = b.first_index;
+  raw.channel_count = b.channel_count;
+  raw.status = b.status;
+  raw.samples = b.samples_per_channel;
+  raw.data.reserve(b.codes.size() * 3);
+  for (std::int32_t c : b.codes) protocol::wire::put_i24(raw.data, c);
+  batch_.raw.push_back(std::move(raw));
+
+  for (std::size_t c = 0; c < run.chains.size(); ++c) {
+    run.chains[c]->process(b.first_index, b.status, b.codes.data() + c, b.samples_per_channel, b.channel_count,
+                           run.rows[c].output);
+  }
+}
+
+void Ingest::on_event(const protocol::BoardEvent& e, double receive_unix) {
+  (void)receive_unix;
+  ++counters_.board_events;
+  static constexpr const char* names[] = {"",      "reset_begin",       "reset_end",         "overload",
+                                          "board_fault", "zero_relay_closed", "zero_relay_opened", "stream_end"};
+  const std::optional<int> channel = e.channel == 0xFF ? std::nullopt : std::optional<int>(e.channel);
+  event(std::string("board_") + names[int(e.kind)], "value=" + std::to_string(e.value), e.sample_index, channel);
+  if (e.kind == protocol::EventKind::stream_end) end_run("stream ended");
+}
+
+void Ingest::end_run(const std::string& reason) {
+  if (!run_) return;
+  Run& run = *run_;
+  for (std::size_t c = 0; c < run.chains.size(); ++c) {
+    run.chains[c]->finish(run.rows[c].output);
+    carried_[int(c)] = run.chains[c]->snapshot().state;
+  }
+  storage::RunEnd end;
+  end.run_id = run.run_id;
+  end.reason = reason;
+  end.ended_unix = clock_();
+  batch_.run_end = end;
+  log_.info("run " + std::to_string(run.run_id) + " ended: " + reason);
+  flush();
+  run_.reset();
+  if (reason != "identity changed") identity_.reset();
+}
+
+void Ingest::flush() {
+  if (run_) {
+    for (std::size_t c = 0; c < run_->chains.size(); ++c) {
+      storage::ChannelRows rows = std::move(run_->rows[c]);
+      run_->rows[c].output = {};
+      rows.checkpoint = run_->chains[c]->snapshot();
+      batch_.channels.push_back(std::move(rows));
+    }
+  }
+  if (batch_.empty()) return;
+  writer_.submit(std::move(batch_));
+  batch_ = storage::Batch{};
+}
+
+nlohmann::json Ingest::status() const {
+  using nlohmann::json;
+  const auto& d = decoder_.counters();
+  json j = {
+      {"decoder",
+       {{"bytes_in", d.bytes_in}, {"frames_ok", d.frames_ok}, {"discarded_bytes", d.discarded_bytes},
+        {"bad_crc", d.bad_crc}, {"oversize", d.oversize}, {"bad_version", d.bad_version}, {"malformed", d.malformed}}},
+      {"ingest",
+       {{"blocks", counters_.blocks}, {"samples", counters_.samples},
+        {"samples_before_identity", counters_.samples_before_identity}, {"gaps", counters_.gaps},
+        {"missing_samples", counters_.missing_samples}, {"runs_started", counters_.runs_started},
+        {"runs_resumed", counters_.runs_resumed}, {"board_events", counters_.board_events},
+        {"wrong_shape_blocks", counters_.wrong_shape_blocks}}},
+  };
+  if (identity_) {
+    j["board"] = {{"serial", identity_->board_serial},         {"firmware_version", identity_->firmware_version},
+                  {"channels", identity_->channel_count},      {"adc_bits", identity_->adc_bits},
+                  {"full_scale_v", identity_->full_scale_v},   {"sample_period_s", identity_->sample_period_s},
+                  {"capabilities", identity_->capabilities}};
+  }
+  if (run_) {
+    json channels = json::array();
+    for (std::size_t c = 0; c < run_->chains.size(); ++c) {
+      const auto t = run_->chains[c]->snapshot();
+      const auto& cal = run_->chains[c]->calibration();
+      channels.push_back({{"channel", c}, {"quantity", cal.quantity_name()}, {"unit", cal.unit()},
+                          {"total", t.total}, {"std_uncertainty", t.std_uncertainty}, {"segments", t.segments},
+                          {"last_index", t.last_index}, {"flags", t.flags}});
+    }
+    j["run"] = {{"run_id", run_->run_id}, {"next_index", run_->next_index}, {"channels", channels}};
+  } else {
+    j["run"] = nullptr;
+  }
+  return j;
+}
+
+}  // namespace accrue::daemon

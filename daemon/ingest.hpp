@@ -1,0 +1,96 @@
+#pragma once
+// Ingest is the daemon's one-way pipeline from link bytes to storage: it owns
+// the protocol Decoder and one ChannelChain per channel, tracks board runs
+// (identity, sample-index continuity, reboots), and hands the Writer a Batch
+// on every flush(). It never waits on the disk. Single-threaded: the Asio
+// thread calls it.
+#include <cstdint>
+#include <functional>
+#include <map>
+#include <memory>
+#include <optional>
+#include <span>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "daemon/chain/channel_chain.hpp"
+#include "daemon/log.hpp"
+#include "daemon/options.hpp"
+#include "protocol/decoder.hpp"
+#include "storage/batch.hpp"
+#include "storage/reader.hpp"
+#include "storage/writer.hpp"
+
+namespace accrue::daemon {
+
+struct IngestCounters {
+  std::uint64_t blocks = 0;
+  std::uint64_t samples = 0;          // per-channel samples accepted
+  std::uint64_t samples_before_identity = 0;
+  std::uint64_t gaps = 0;
+  std::uint64_t missing_samples = 0;  // summed over gaps
+  std::uint64_t runs_started = 0;
+  std::uint64_t runs_resumed = 0;
+  std::uint64_t board_events = 0;
+  std::uint64_t wrong_shape_blocks = 0;  // channel count differs from the identity
+};
+
+class Ingest {
+ public:
+  using Clock = std::function<double()>;  // Unix seconds, injected
+  Ingest(const DaemonConfig& config, storage::Writer& writer, Logger& log, Clock clock);
+
+  // What the store says was running when the daemon last stopped.
+  void set_resume_point(std::optional<storage::RunInfo> run, std::vector<storage::CheckpointRow> checkpoints);
+
+  void on_bytes(std::span<const std::uint8_t> bytes, double receive_unix);
+  void on_link_lost(const std::string& why);
+  // Hands everything gathered since the last call, with checkpoints, to the writer.
+  void flush();
+  // The run cannot continue (daemon stopping keeps it open; this closes it).
+  void end_run(const std::string& reason);
+
+  nlohmann::json status() const;
+  const protocol::Decoder& decoder() const { return decoder_; }
+  const IngestCounters& counters() const { return counters_; }
+  bool run_active() const { return run_.has_value(); }
+
+ private:
+  struct Run {
+    std::int64_t run_id = 0;
+    protocol::BoardIdentity board;
+    std::uint64_t next_index = 0;
+    bool any_samples = false;
+    std::vector<std::unique_ptr<chain::ChannelChain>> chains;
+    std::vector<storage::ChannelRows> rows;  // per channel, current batch
+  };
+
+  void handle(const protocol::Message& m, double receive_unix);
+  void on_identity(const protocol::BoardIdentity& id, double receive_unix);
+  void on_block(const protocol::SampleBlock& b, double receive_unix);
+  void on_event(const protocol::BoardEvent& e, double receive_unix);
+  void start_run(const protocol::BoardIdentity& id, double receive_unix, std::optional<std::uint64_t> first_index);
+  chain::Calibration calibration_for(int channel, const protocol::BoardIdentity& id) const;
+  void event(std::string kind, std::string detail, std::optional<std::uint64_t> index = std::nullopt,
+             std::optional<int> channel = std::nullopt);
+
+  DaemonConfig config_;
+  storage::Writer& writer_;
+  Logger& log_;
+  Clock clock_;
+  protocol::Decoder decoder_;
+  std::vector<protocol::Message> messages_;
+  std::optional<protocol::BoardIdentity> identity_;
+  std::optional<Run> run_;
+  std::int64_t next_run_id_ = 1;
+  std::optional<storage::RunInfo> resume_run_;
+  std::vector<storage::CheckpointRow> resume_checkpoints_;
+  std::map<int, chain::ChainState> carried_;  // totals carried across board runs
+  storage::Batch batch_;
+  IngestCounters counters_;
+  double pending_utc0_ = 0.0;
+};
+
+}  // namespace accrue::daemon

@@ -1,0 +1,65 @@
+#pragma once
+// What the ingest hands the Writer in one go: rows for one stretch of input,
+// in data-flow order. A Batch is a value; the Writer owns it once submitted.
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "daemon/chain/records.hpp"
+#include "protocol/messages.hpp"
+
+namespace accrue::storage {
+
+struct RunStart {
+  std::int64_t run_id = 0;
+  protocol::BoardIdentity board;
+  double utc_at_index0 = 0.0;  // Unix seconds of sample index 0
+  double started_unix = 0.0;
+};
+
+struct RunEnd {
+  std::int64_t run_id = 0;
+  std::string reason;
+  double ended_unix = 0.0;
+};
+
+struct RawBlockRow {
+  std::int64_t run_id = 0;
+  std::uint64_t first_index = 0;
+  std::uint8_t channel_count = 1;
+  std::uint8_t status = 0;
+  std::uint16_t samples = 0;  // per channel
+  std::vector<std::uint8_t> data;  // encoding 1: packed 24-bit, interleaved
+};
+
+struct ChannelRows {
+  int channel = 0;
+  std::int64_t run_id = 0;
+  std::int64_t calibration_id = 0;
+  chain::ChainOutput output;
+  std::optional<chain::TotalSnapshot> checkpoint;
+};
+
+struct EventRow {
+  std::optional<std::int64_t> run_id;
+  std::optional<int> channel;
+  std::optional<std::uint64_t> sample_index;
+  std::string kind;
+  std::string detail;
+  double host_unix = 0.0;
+};
+
+struct Batch {
+  std::optional<RunStart> run_start;
+  std::vector<RawBlockRow> raw;
+  std::vector<ChannelRows> channels;
+  std::vector<EventRow> events;
+  std::optional<RunEnd> run_end;
+
+  bool empty() const { return !run_start && raw.empty() && channels.empty() && events.empty() && !run_end; }
+  std::size_t raw_bytes() const;
+  std::size_t derived_bytes() const;
+};
+
+}  // namespace accrue::storage

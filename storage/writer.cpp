@@ -1,0 +1,355 @@
+#include "storage/writer.hpp"
+
+#include <nlohmann/json.hpp>
+
+#include "storage/chain_state_json.hpp"
+#include "storage/migrations.hpp"
+#include "storage/utc.hpp"
+
+namespace accrue::storage {
+
+std::size_t Batch::raw_bytes() const {
+  std::size_t n = 0;
+  for (const auto& r : raw) n += r.data.size() + 32;
+  return n;
+}
+
+std::size_t Batch::derived_bytes() const {
+  std::size_t n = 256 * events.size() + 256;
+  for (const auto& c : channels) {
+    n += sizeof(chain::SeriesPoint) * c.output.series.size() + sizeof(chain::SegmentRecord) * c.output.segments.size() +
+         sizeof(chain::BaselineRecord) * c.output.baselines.size() + sizeof(chain::TotalSnapshot);
+  }
+  return n;
+}
+
+struct Writer::Statements {
+  Statement board, board_id, run, run_end, raw, series, segment, baseline, event, checkpoint;
+};
+
+Writer::Writer(std::unique_ptr<Database> db, WriterSettings settings, Clock clock)
+    : db_(std::move(db)), settings_(settings), clock_(std::move(clock)) {}
+
+Writer::~Writer() { stop(); }
+
+Status Writer::open(const std::string& path, WriterSettings settings, Clock clock, std::unique_ptr<Writer>& out) {
+  std::unique_ptr<Database> db;
+  if (Status s = Database::open(path, Database::Mode::read_write_create, db); !s.ok()) return s;
+  if (Status s = configure_writer_connection(*db); !s.ok()) return s;
+  if (Status s = migrate(*db); !s.ok()) return s;
+  std::unique_ptr<Writer> w(new Writer(std::move(db), settings, std::move(clock)));
+  if (Status s = w->prepare_statements(); !s.ok()) return s;
+  out = std::move(w);
+  return Status::success();
+}
+
+Status Writer::prepare_statements() {
+  st_ = std::make_unique<Statements>();
+  struct Item {
+    Statement* st;
+    const char* sql;
+  } items[] = {
+      {&st_->board,
+       "INSERT INTO board(serial, firmware_version, channel_count, adc_bits, full_scale_v, capabilities, first_seen_utc)"
+       " VALUES(?,?,?,?,?,?,?) ON CONFLICT(serial) DO UPDATE SET firmware_version = excluded.firmware_version,"
+       " channel_count = excluded.channel_count, adc_bits = excluded.adc_bits, full_scale_v = excluded.full_scale_v,"
+       " capabilities = excluded.capabilities"},
+      {&st_->board_id, "SELECT board_id FROM board WHERE serial = ?"},
+      {&st_->run, "INSERT INTO run(run_id, board_id, started_utc, sample_period_s, utc_at_index0) VALUES(?,?,?,?,?)"},
+      {&st_->run_end, "UPDATE run SET ended_utc = ?, end_reason = ? WHERE run_id = ?"},
+      {&st_->raw,
+       "INSERT OR REPLACE INTO raw_block(run_id, first_index, channel_count, samples, status, encoding, data)"
+       " VALUES(?,?,?,?,?,1,?)"},
+      {&st_->series,
+       "INSERT OR REPLACE INTO series_point(run_id, channel, first_index, samples, min_v, max_v, mean_v, last_v, total,"
+       " total_u, calibration_id) VALUES(?,?,?,?,?,?,?,?,?,?,?)"},
+      {&st_->segment,
+       "INSERT OR REPLACE INTO segment(run_id, channel, ordinal, first_index, last_index, start_v, end_v, drift_v,"
+       " gap_before_v, gap_before_u_v, end_points_u_v, quantity, baseline_ordinal, flags, total_after, total_u_after,"
+       " calibration_id) VALUES(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)"},
+      {&st_->baseline,
+       "INSERT OR REPLACE INTO baseline(run_id, channel, ordinal, first_index, last_index, samples, intercept_v,"
+       " slope_v_per_s, slope_se_v_per_s, residual_rms_v) VALUES(?,?,?,?,?,?,?,?,?,?)"},
+      {&st_->event,
+       "INSERT INTO event(run_id, channel, sample_index, kind, detail, host_utc) VALUES(?,?,?,?,?,?)"},
+      {&st_->checkpoint,
+       "INSERT OR REPLACE INTO total_checkpoint(channel, run_id, last_index, total, std_uncertainty, segments, flags,"
+       " calibration_id, state, committed_utc) VALUES(?,?,?,?,?,?,?,?,?,?)"},
+  };
+  for (auto& item : items) {
+    if (Status s = db_->prepare(item.sql, *item.st); !s.ok()) return s;
+  }
+  return Status::success();
+}
+
+Status Writer::ensure_calibration(int channel, chain::Calibration& cal) {
+  nlohmann::json def = {
+      {"adc", {{"bits", cal.adc.bits}, {"zero_code", cal.adc.zero_code}, {"full_scale_v", cal.adc.full_scale_v},
+               {"gain", cal.adc.gain}, {"bipolar", cal.adc.bipolar}}},
+      {"front_end", {{"r1_ohm", cal.front_end.r1_ohm}, {"c_farad", cal.front_end.c_farad},
+                     {"r2_ohm", cal.front_end.r2_ohm}, {"inverting", cal.front_end.inverting}}},
+      {"sensor", std::string(chain::to_string(cal.sensor))}};
+  const std::string text = def.dump();
+  Statement find;
+  if (Status s = db_->prepare(
+          "SELECT calibration_id FROM calibration WHERE channel = ? AND definition = ? ORDER BY calibration_id DESC LIMIT 1",
+          find);
+      !s.ok())
+    return s;
+  find.bind(1, std::int64_t(channel)).bind(2, text);
+  bool row = false;
+  if (Status s = find.step(&row); !s.ok()) return s;
+  if (row) {
+    cal.id = find.column_int(0);
+    return Status::success();
+  }
+  Statement insert;
+  if (Status s = db_->prepare(
+          "INSERT INTO calibration(channel, created_utc, quantity, unit, quantity_per_volt, definition) VALUES(?,?,?,?,?,?)",
+          insert);
+      !s.ok())
+    return s;
+  insert.bind(1, std::int64_t(channel))
+      .bind(2, rfc3339_utc(clock_()))
+      .bind(3, cal.quantity_name())
+      .bind(4, cal.unit())
+      .bind(5, cal.quantity_per_volt())
+      .bind(6, text);
+  if (Status s = insert.run(); !s.ok()) return s;
+  cal.id = sqlite3_last_insert_rowid(db_->handle());
+  return Status::success();
+}
+
+Status Writer::next_run_id(std::int64_t& out) {
+  Statement st;
+  if (Status s = db_->prepare("SELECT COALESCE(MAX(run_id), 0) + 1 FROM run", st); !s.ok()) return s;
+  bool row = false;
+  if (Status s = st.step(&row); !s.ok()) return s;
+  out = row ? st.column_int(0) : 1;
+  return Status::success();
+}
+
+void Writer::start() {
+  if (!thread_.joinable()) thread_ = std::thread([this] { thread_main(); });
+}
+
+void Writer::submit(Batch batch) {
+  std::lock_guard lock(mutex_);
+  ++counters_.batches_accepted;
+  if (counters_.queued_bytes + batch.raw_bytes() > settings_.soft_limit_bytes && !batch.raw.empty()) {
+    counters_.raw_blocks_shed += batch.raw.size();
+    batch.raw.clear();
+    shed_notice_pending_ = true;
+  }
+  if (counters_.queued_bytes + batch.derived_bytes() > settings_.hard_limit_bytes) {
+    for (auto& c : batch.channels) {
+      counters_.series_points_shed += c.output.series.size();
+      c.output.series.clear();
+    }
+    shed_notice_pending_ = true;
+  }
+  if (shed_notice_pending_ && counters_.queued_bytes < settings_.soft_limit_bytes / 2) {
+    // Say so once the queue has room again, with the counts so far.
+    batch.events.push_back({std::nullopt, std::nullopt, std::nullopt, "writer_shed",
+                            "raw_blocks_shed=" + std::to_string(counters_.raw_blocks_shed) +
+                                " series_points_shed=" + std::to_string(counters_.series_points_shed),
+                            clock_()});
+    shed_notice_pending_ = false;
+  }
+  counters_.queued_bytes += batch.raw_bytes() + batch.derived_bytes();
+  queue_.push_back(std::move(batch));
+  if (counters_.queued_bytes > settings_.soft_limit_bytes / 4) wake_.notify_one();
+}
+
+WriterCounters Writer::counters() const {
+  std::lock_guard lock(mutex_);
+  return counters_;
+}
+
+void Writer::stop() {
+  {
+    std::lock_guard lock(mutex_);
+    if (stopping_ && !thread_.joinable()) return;
+    stopping_ = true;
+  }
+  wake_.notify_one();
+  if (thread_.joinable()) thread_.join();
+  if (!queue_.empty()) {
+    // Never started (or stopped before the thread ran): commit here.
+    std::deque<Batch> pending;
+    pending.swap(queue_);
+    (void)commit(pending);
+  }
+}
+
+void Writer::thread_main() {
+  std::deque<Batch> pending;  // taken from the queue, not yet committed
+  int failures_at_stop = 0;
+  for (;;) {
+    bool stopping = false;
+    {
+      std::unique_lock lock(mutex_);
+      wake_.wait_for(lock, settings_.commit_interval, [&] { return stopping_; });
+      stopping = stopping_;
+      while (!queue_.empty()) {
+        pending.push_back(std::move(queue_.front()));
+        queue_.pop_front();
+      }
+    }
+    if (!pending.empty()) {
+      const Status s = commit(pending);
+      if (!s.ok() && stopping && ++failures_at_stop >= 3) return;  // logged in counters; nothing more to try
+    }
+    if (stopping && pending.empty()) {
+      std::lock_guard lock(mutex_);
+      if (queue_.empty()) return;
+    }
+  }
+}
+
+Status Writer::commit(std::deque<Batch>& pending) {
+  std::size_t bytes = 0;
+  Status s = db_->exec("BEGIN IMMEDIATE");
+  if (s.ok()) {
+    for (const Batch& b : pending) {
+      if (s = write_batch(b); !s.ok()) break;
+      bytes += b.raw_bytes() + b.derived_bytes();
+    }
+  }
+  if (s.ok()) s = db_->exec("COMMIT");
+  std::lock_guard lock(mutex_);
+  if (!s.ok()) {
+    (void)db_->exec("ROLLBACK");
+    ++counters_.commit_failures;
+    counters_.last_error = s.message;
+    return s;
+  }
+  ++counters_.commits;
+  counters_.last_commit_unix = clock_();
+  counters_.queued_bytes -= std::min(counters_.queued_bytes, bytes);
+  for (const Batch& b : pending) {
+    counters_.raw_blocks_written += b.raw.size();
+    counters_.events_written += b.events.size();
+    for (const auto& c : b.channels) {
+      counters_.series_points_written += c.output.series.size();
+      counters_.segments_written += c.output.segments.size();
+      if (c.checkpoint) counters_.committed_last_index[c.channel] = c.checkpoint->last_index;
+    }
+  }
+  pending.clear();
+  return s;
+}
+
+Status Writer::write_batch(const Batch& b) {
+  Statements& st = *st_;
+  if (b.run_start) {
+    const auto& r = *b.run_start;
+    st.board.bind(1, std::int64_t(r.board.board_serial))
+        .bind(2, std::int64_t(r.board.firmware_version))
+        .bind(3, std::int64_t(r.board.channel_count))
+        .bind(4, std::int64_t(r.board.adc_bits))
+        .bind(5, r.board.full_scale_v)
+        .bind(6, std::int64_t(r.board.capabilities))
+        .bind(7, rfc3339_utc(r.started_unix));
+    if (Status s = st.board.run(); !s.ok()) return s;
+    st.board_id.bind(1, std::int64_t(r.board.board_serial));
+    bool row = false;
+    Status s = st.board_id.step(&row);
+    const std::int64_t board_id = row ? st.board_id.column_int(0) : 0;
+    st.board_id.reset();
+    if (!s.ok()) return s;
+    st.run.bind(1, r.run_id)
+        .bind(2, board_id)
+        .bind(3, rfc3339_utc(r.started_unix))
+        .bind(4, r.board.sample_period_s)
+        .bind(5, r.utc_at_index0);
+    if (Status s2 = st.run.run(); !s2.ok()) return s2;
+  }
+  for (const auto& r : b.raw) {
+    st.raw.bind(1, r.run_id)
+        .bind(2, std::int64_t(r.first_index))
+        .bind(3, std::int64_t(r.channel_count))
+        .bind(4, std::int64_t(r.samples))
+        .bind(5, std::int64_t(r.status))
+        .bind(6, std::span<const std::uint8_t>(r.data));
+    if (Status s = st.raw.run(); !s.ok()) return s;
+  }
+  for (const auto& c : b.channels) {
+    const std::int64_t ch = c.channel;
+    for (const auto& p : c.output.series) {
+      st.series.bind(1, c.run_id)
+          .bind(2, ch)
+          .bind(3, std::int64_t(p.first_index))
+          .bind(4, std::int64_t(p.samples))
+          .bind(5, p.min_v)
+          .bind(6, p.max_v)
+          .bind(7, p.mean_v)
+          .bind(8, p.last_v)
+          .bind(9, p.total)
+          .bind(10, p.total_u)
+          .bind(11, c.calibration_id);
+      if (Status s = st.series.run(); !s.ok()) return s;
+    }
+    for (const auto& g : c.output.baselines) {
+      st.baseline.bind(1, c.run_id)
+          .bind(2, ch)
+          .bind(3, std::int64_t(g.ordinal))
+          .bind(4, std::int64_t(g.first_index))
+          .bind(5, std::int64_t(g.last_index))
+          .bind(6, std::int64_t(g.samples))
+          .bind(7, g.intercept_v)
+          .bind(8, g.slope_v_per_s)
+          .bind(9, g.slope_se_v_per_s)
+          .bind(10, g.residual_rms_v);
+      if (Status s = st.baseline.run(); !s.ok()) return s;
+    }
+    for (const auto& g : c.output.segments) {
+      st.segment.bind(1, c.run_id)
+          .bind(2, ch)
+          .bind(3, std::int64_t(g.ordinal))
+          .bind(4, std::int64_t(g.first_index))
+          .bind(5, std::int64_t(g.last_index))
+          .bind(6, g.start_v)
+          .bind(7, g.end_v)
+          .bind(8, g.drift_v)
+          .bind(9, g.gap_before_v)
+          .bind(10, g.gap_before_u_v)
+          .bind(11, g.end_points_u_v)
+          .bind(12, g.quantity)
+          .bind(13, std::int64_t(g.baseline_ordinal))
+          .bind(14, std::int64_t(g.flags))
+          .bind(15, g.total_after)
+          .bind(16, g.total_u_after)
+          .bind(17, c.calibration_id);
+      if (Status s = st.segment.run(); !s.ok()) return s;
+    }
+    if (c.checkpoint) {
+      const auto& t = *c.checkpoint;
+      st.checkpoint.bind(1, ch)
+          .bind(2, c.run_id)
+          .bind(3, std::int64_t(t.last_index))
+          .bind(4, t.total)
+          .bind(5, t.std_uncertainty)
+          .bind(6, std::int64_t(t.segments))
+          .bind(7, std::int64_t(t.flags))
+          .bind(8, c.calibration_id)
+          .bind(9, chain_state_to_json(t.state))
+          .bind(10, rfc3339_utc(clock_()));
+      if (Status s = st.checkpoint.run(); !s.ok()) return s;
+    }
+  }
+  for (const auto& e : b.events) {
+    if (e.run_id) st.event.bind(1, *e.run_id); else st.event.bind_null(1);
+    if (e.channel) st.event.bind(2, std::int64_t(*e.channel)); else st.event.bind_null(2);
+    if (e.sample_index) st.event.bind(3, std::int64_t(*e.sample_index)); else st.event.bind_null(3);
+    st.event.bind(4, e.kind).bind(5, e.detail).bind(6, rfc3339_utc(e.host_unix));
+    if (Status s = st.event.run(); !s.ok()) return s;
+  }
+  if (b.run_end) {
+    st.run_end.bind(1, rfc3339_utc(b.run_end->ended_unix)).bind(2, b.run_end->reason).bind(3, b.run_end->run_id);
+    if (Status s = st.run_end.run(); !s.ok()) return s;
+  }
+  return Status::success();
+}
+
+}  // namespace accrue::storage

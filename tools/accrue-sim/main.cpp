@@ -1,0 +1,217 @@
+// accrue-sim: a simulated integrator board on a pseudo-terminal.
+#include <poll.h>
+#include <unistd.h>
+
+#include <cerrno>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstring>
+#include <fstream>
+#include <iostream>
+#include <sstream>
+#include <string>
+#include <thread>
+
+#include "protocol/decoder.hpp"
+#include "tools/accrue-sim/board_model.hpp"
+#include "tools/accrue-sim/pty.hpp"
+
+namespace {
+
+using namespace accrue;
+
+constexpr const char* kUsage = R"(usage: accrue-sim [options]
+
+Simulates an integrator board (charge amplifier, drift, resets, ADC) playing an
+invented scenario, and streams its frames on a new pseudo-terminal. Prints the
+pseudo-terminal's path on the first line of stdout. At the end it writes the
+truth (the exact integrated charge) as JSON.
+
+options:
+  --scenario FILE       JSON overrides of the default scenario (see --print-scenario)
+  --set KEY=VALUE       override one scenario number, e.g. --set duration_s=600
+                        or --set front_end.bias_a=2e-12 (repeatable)
+  --speed X             board time per wall time (default 0: as fast as the reader takes it)
+  --truth FILE          write the truth JSON here (default: stdout, after the path line)
+  --path-file FILE      also write the pseudo-terminal path to FILE
+  --linger-s S          wait at most S seconds for the reader to drain before closing (default 60)
+  --print-scenario      print the scenario as JSON and exit
+  --help                this text
+)";
+
+bool set_key(nlohmann::json& overrides, const std::string& kv, std::string& why) {
+  const auto eq = kv.find('=');
+  if (eq == std::string::npos) {
+    why = "--set needs KEY=VALUE, got " + kv;
+    return false;
+  }
+  const std::string key = kv.substr(0, eq), value = kv.substr(eq + 1);
+  nlohmann::json v = nlohmann::json::parse(value, nullptr, false);
+  if (v.is_discarded()) v = value;
+  nlohmann::json* at = &overrides;
+  std::stringstream path(key);
+  std::string part, last;
+  std::vector<std::string> parts;
+  while (std::getline(path, part, '.')) parts.push_back(part);
+  for (std::size_t i = 0; i + 1 < parts.size(); ++i) at = &(*at)[parts[i]];
+  (*at)[parts.back()] = v;
+  return true;
+}
+
+bool write_all(int fd, const std::uint8_t* data, std::size_t n, sim::BoardModel& board, protocol::Decoder& decoder,
+               std::vector<std::uint8_t>& replies) {
+  std::size_t done = 0;
+  std::vector<protocol::Message> commands;
+  std::uint8_t in[4096];
+  while (done < n) {
+    pollfd p{fd, POLLOUT | POLLIN, 0};
+    if (::poll(&p, 1, 1000) < 0 && errno != EINTR) return false;
+    if (p.revents & POLLIN) {
+      const ssize_t r = ::read(fd, in, sizeof in);
+      if (r > 0) {
+        commands.clear();
+        decoder.feed(std::span<const std::uint8_t>(in, std::size_t(r)), commands);
+        for (const auto& m : commands)
+          if (auto* c = std::get_if<protocol::BoardCommand>(&m)) board.command(*c, replies);
+      }
+    }
+    if (p.revents & POLLOUT) {
+      const ssize_t w = ::write(fd, data + done, n - done);
+      if (w > 0) done += std::size_t(w);
+      else if (w < 0 && errno != EAGAIN && errno != EINTR) return false;
+    }
+  }
+  return true;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  sim::Scenario scenario;
+  nlohmann::json overrides = nlohmann::json::object();
+  double speed = 0.0, linger_s = 60.0;
+  std::string truth_path, path_file;
+  bool print_scenario = false;
+  for (int i = 1; i < argc; ++i) {
+    const std::string a = argv[i];
+    auto value = [&]() -> std::string {
+      if (i + 1 >= argc) {
+        std::fprintf(stderr, "accrue-sim: %s needs a value\n", a.c_str());
+        std::exit(2);
+      }
+      return argv[++i];
+    };
+    std::string why;
+    if (a == "--help" || a == "-h") {
+      std::fputs(kUsage, stdout);
+      return 0;
+    } else if (a == "--scenario") {
+      std::ifstream in(value());
+      const auto j = nlohmann::json::parse(in, nullptr, false, true);
+      if (j.is_discarded() || !j.is_object()) {
+        std::fprintf(stderr, "accrue-sim: --scenario: not a JSON object\n");
+        return 2;
+      }
+      overrides.merge_patch(j);
+    } else if (a == "--set") {
+      if (!set_key(overrides, value(), why)) {
+        std::fprintf(stderr, "accrue-sim: %s\n", why.c_str());
+        return 2;
+      }
+    } else if (a == "--speed") {
+      speed = std::atof(value().c_str());
+    } else if (a == "--truth") {
+      truth_path = value();
+    } else if (a == "--path-file") {
+      path_file = value();
+    } else if (a == "--linger-s") {
+      linger_s = std::atof(value().c_str());
+    } else if (a == "--print-scenario") {
+      print_scenario = true;
+    } else {
+      std::fprintf(stderr, "accrue-sim: unknown option %s (see --help)\n", a.c_str());
+      return 2;
+    }
+  }
+  if (std::string err = sim::apply_json(overrides, scenario); !err.empty()) {
+    std::fprintf(stderr, "accrue-sim: scenario: %s\n", err.c_str());
+    return 2;
+  }
+  if (print_scenario) {
+    std::cout << sim::to_json(scenario).dump(2) << "\n";
+    return 0;
+  }
+
+  sim::PseudoTerminal pty;
+  std::string why;
+  if (!pty.open(why)) {
+    std::fprintf(stderr, "accrue-sim: %s\n", why.c_str());
+    return 1;
+  }
+  std::printf("%s\n", pty.slave_path().c_str());
+  std::fflush(stdout);
+  if (!path_file.empty()) {
+    std::ofstream(path_file) << pty.slave_path() << "\n";
+  }
+
+  sim::BoardModel board(scenario);
+  protocol::Decoder decoder;
+  std::vector<std::uint8_t> out, replies;
+  const auto wall_start = std::chrono::steady_clock::now();
+  const std::uint64_t chunk = std::max<std::uint64_t>(scenario.samples_per_block, 8192);
+  bool ok = true;
+  while (ok) {
+    out.clear();
+    const bool more = board.produce(chunk, out);
+    out.insert(out.end(), replies.begin(), replies.end());
+    replies.clear();
+    ok = write_all(pty.master_fd(), out.data(), out.size(), board, decoder, replies);
+    if (!more) break;
+    if (speed > 0) {
+      const double board_s = double(board.next_index()) * scenario.sample_period_s;
+      const auto due = wall_start + std::chrono::duration_cast<std::chrono::steady_clock::duration>(
+                                        std::chrono::duration<double>(board_s / speed));
+      std::this_thread::sleep_until(due);
+    }
+  }
+  if (!replies.empty()) write_all(pty.master_fd(), replies.data(), replies.size(), board, decoder, replies);
+
+  const auto& t = board.truth();
+  nlohmann::json truth = {
+      {"scenario", scenario.name},
+      {"quantity", "charge"},
+      {"unit", "C"},
+      {"true_total", double(t.charge_c)},
+      {"charge_lost_in_dead_time", double(t.lost_in_dead_c)},
+      {"samples", t.samples},
+      {"last_index", t.samples ? t.samples - 1 : 0},
+      {"resets", t.resets},
+      {"clipped_samples", t.clipped_samples},
+      {"sample_period_s", scenario.sample_period_s},
+      {"drift_v_per_s", scenario.drift_v_per_s()},
+      {"c_farad", scenario.front_end.c_farad},
+      {"noise_v", scenario.front_end.noise_v},
+      {"complete", ok},
+  };
+  if (truth_path.empty()) {
+    std::cout << truth.dump() << "\n";
+    std::cout.flush();
+  } else {
+    std::ofstream f(truth_path + ".tmp");
+    f << truth.dump(2) << "\n";
+    f.close();
+    std::rename((truth_path + ".tmp").c_str(), truth_path.c_str());
+  }
+  // Let the reader drain what is still queued before the cable is "pulled".
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(linger_s);
+  while (pty.unread_bytes() > 0 && std::chrono::steady_clock::now() < deadline)
+    std::this_thread::sleep_for(std::chrono::milliseconds(20));
+  std::this_thread::sleep_for(std::chrono::milliseconds(100));
+  pty.close();
+  if (!ok) {
+    std::fprintf(stderr, "accrue-sim: writing to the pseudo-terminal failed: %s\n", std::strerror(errno));
+    return 1;
+  }
+  return 0;
+}

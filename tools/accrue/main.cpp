@@ -1,0 +1,75 @@
+// accrue: the command-line client for accrued.
+#include <cstdio>
+#include <cstring>
+#include <string>
+#include <vector>
+
+#include "tools/accrue/commands.hpp"
+
+namespace {
+
+constexpr const char* kUsage = R"(usage: accrue [--socket PATH] [--json] COMMAND [options]
+
+Talks to accrued over its JSON-RPC 2.0 socket.
+
+commands:
+  status                      link, board, run, live totals and counters
+  totals                      committed running total per channel, with U (k=2)
+  runs                        board sessions recorded in the store
+  window [--channel N] [--run ID] [--from T] [--to T] [--points N]
+                              a window of the derived series; T is a sample
+                              index, Unix seconds (with a fraction) or RFC 3339
+  compare --truth FILE [--max-error-percent X]
+                              the committed total beside a simulator's truth
+  wait [--timeout S]          wait until the newest run has ended and all of it
+                              is committed
+
+options:
+  --socket PATH   the daemon's socket (default accrued.sock, or $ACCRUE_SOCKET)
+  --json          machine-readable output
+  --help          this text
+)";
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  accrue::client::CommonOptions o;
+  if (const char* env = std::getenv("ACCRUE_SOCKET")) o.socket_path = env;
+  int i = 1;
+  for (; i < argc; ++i) {
+    const std::string a = argv[i];
+    if (a == "--help" || a == "-h") {
+      std::fputs(kUsage, stdout);
+      return 0;
+    } else if (a == "--json") {
+      o.json = true;
+    } else if (a == "--socket") {
+      if (i + 1 >= argc) {
+        std::fprintf(stderr, "accrue: --socket needs a value\n");
+        return 2;
+      }
+      o.socket_path = argv[++i];
+    } else {
+      break;
+    }
+  }
+  if (i >= argc) {
+    std::fputs(kUsage, stderr);
+    return 2;
+  }
+  const std::string command = argv[i];
+  std::vector<std::string> args;
+  for (int k = i + 1; k < argc; ++k) {
+    if (std::strcmp(argv[k], "--json") == 0) o.json = true;
+    else args.emplace_back(argv[k]);
+  }
+  using namespace accrue::client;
+  if (command == "status") return cmd_status(o, args);
+  if (command == "totals") return cmd_totals(o, args);
+  if (command == "runs") return cmd_runs(o, args);
+  if (command == "window") return cmd_window(o, args);
+  if (command == "compare") return cmd_compare(o, args);
+  if (command == "wait") return cmd_wait(o, args);
+  std::fprintf(stderr, "accrue: unknown command %s (see --help)\n", command.c_str());
+  return 2;
+}
