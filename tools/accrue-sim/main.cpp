@@ -192,6 +192,10 @@ int main(int argc, char** argv) {
       {"drift_v_per_s", scenario.drift_v_per_s()},
       {"c_farad", scenario.front_end.c_farad},
       {"noise_v", scenario.front_end.noise_v},
+      {"zero_window_s", scenario.zero_window_s},
+      {"reset_s", scenario.front_end.reset_s},
+      {"adc_lsb_v", scenario.adc.full_scale_v / std::ldexp(1.0, scenario.adc.bits - 1)},
+      {"max_input_current_a", scenario.beam.current_a * (1.0 + std::fabs(scenario.beam.modulation))},
       {"complete", ok},
   };
   if (truth_path.empty()) {
