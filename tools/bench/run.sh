@@ -1,0 +1,89 @@
+#!/usr/bin/env bash
+# Benchmarks, one command: builds Release with the benchmarks, then measures
+# (1) the chain kernel beside a plain decode-and-sum loop (Google Benchmark),
+# (2) end to end through a pseudo-terminal into SQLite at a paced 1 M samples/s
+#     for 60 s, with the daemon's CPU per million samples and bytes per sample,
+# (3) the same stream into a naive Python logger (a row per sample), as ratios,
+# and writes tools/bench/RESULTS.md. Not a test: figures depend on the machine.
+set -euo pipefail
+top=$(cd "$(dirname "$0")/../.." && pwd)
+"$top/scripts/bootstrap.sh"
+build="${ACCRUE_BENCH_BUILD_DIR:-$top/build-bench}"
+cmake -S "$top" -B "$build" -DCMAKE_BUILD_TYPE=Release -DACCRUE_BUILD_BENCH=ON -DACCRUE_BUILD_TESTS=OFF >/dev/null
+cmake --build "$build" -j"$(nproc)" >/dev/null
+sim="$build/tools/accrue-sim/accrue-sim"; daemon="$build/daemon/accrued"; client="$build/tools/accrue/accrue"
+work=$(mktemp -d /tmp/accrue-bench.XXXXXX)
+trap 'kill $(jobs -p) 2>/dev/null || true; rm -rf "$work"' EXIT
+seconds=${ACCRUE_BENCH_SECONDS:-60}
+rate=${ACCRUE_BENCH_RATE:-1000000}
+
+"$build/tools/bench/accrue-bench-chain" --benchmark_format=json >"$work/kernel.json" 2>/dev/null
+
+run_daemon() {  # $1 = samples, $2 = speed (0 = unpaced); prints "wall_s cpu_s db_bytes shed"
+  local samples=$1 speed=$2
+  rm -f "$work"/e2e.* "$work/pty"
+  "$sim" --set duration_s="$(( samples / 1000 ))" --set beam.stop_s="$(( samples / 1000 - 60 ))" \
+    --set samples_per_block=1000 --speed "$speed" --truth "$work/e2e.truth" --path-file "$work/pty" >/dev/null 2>&1 &
+  local sim_pid=$!
+  for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
+  local t0; t0=$(date +%s.%N)
+  "$daemon" --device "$(cat "$work/pty")" --database "$work/e2e.db" --socket "$work/e2e.sock" 2>/dev/null &
+  local d_pid=$!
+  for _ in $(seq 200); do [ -S "$work/e2e.sock" ] && break; sleep 0.05; done
+  "$client" --socket "$work/e2e.sock" wait --timeout 900 >/dev/null
+  local t1; t1=$(date +%s.%N)
+  local ticks; ticks=$(awk '{print $14 + $15}' "/proc/$d_pid/stat")
+  local shed; shed=$("$client" --socket "$work/e2e.sock" --json status | /usr/bin/python3 -c 'import json,sys; w=json.load(sys.stdin)["writer"]; print(w["raw_blocks_shed"] + w["series_points_shed"])')
+  kill -TERM "$d_pid"; wait "$d_pid" || true; wait "$sim_pid" || true
+  local bytes; bytes=$(( $(stat -c %s "$work/e2e.db") + $(stat -c %s "$work/e2e.db-wal" 2>/dev/null || echo 0) ))
+  echo "$(echo "$t1 - $t0" | bc) $(echo "scale=3; $ticks / $(getconf CLK_TCK)" | bc) $bytes $shed"
+}
+
+paced_samples=$(( seconds * rate ))
+read -r p_wall p_cpu p_bytes p_shed < <(run_daemon "$paced_samples" "$(( rate / 1000 ))")
+fast_samples=${ACCRUE_BENCH_FAST_SAMPLES:-28800000}
+read -r f_wall f_cpu f_bytes f_shed < <(run_daemon "$fast_samples" 0)
+
+naive_samples=${ACCRUE_BENCH_NAIVE_SAMPLES:-600000}
+rm -f "$work/pty" "$work/naive.db"*
+"$sim" --set duration_s="$(( naive_samples / 1000 ))" --set samples_per_block=1000 --truth "$work/naive.truth" \
+  --path-file "$work/pty" >/dev/null 2>&1 &
+for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
+read -r n_seen n_wall < <("$top/tools/bench/naive_logger.py" "$(cat "$work/pty")" "$work/naive.db" "$naive_samples")
+wait || true
+n_bytes=$(( $(stat -c %s "$work/naive.db") + $(stat -c %s "$work/naive.db-wal" 2>/dev/null || echo 0) ))
+
+machine="$(uname -m), $(nproc) cores, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | xargs), $(date -u +%Y-%m-%d)"
+/usr/bin/python3 - "$work/kernel.json" "$top/tools/bench/RESULTS.md" "$machine" \
+  "$paced_samples" "$p_wall" "$p_cpu" "$p_bytes" "$p_shed" "$fast_samples" "$f_wall" "$f_cpu" "$f_bytes" "$f_shed" \
+  "$n_seen" "$n_wall" "$n_bytes" <<'PY'
+import json, sys
+k = json.load(open(sys.argv[1]))["benchmarks"]
+def med(name):
+    for b in k:
+        if b["name"].startswith(name) and b.get("aggregate_name") == "median":
+            return b["items_per_second"]
+(out, machine, ps, pw, pc, pb, pshed, fs, fw, fc, fb, fshed, ns, nw, nb) = sys.argv[2:]
+ps, pw, pc, pb, fs, fw, fc, fb, ns, nw, nb = map(float, (ps, pw, pc, pb, fs, fw, fc, fb, ns, nw, nb))
+chain, plain = med("BM_decode_and_chain"), med("BM_decode_and_sum")
+acc_rate, naive_rate = fs / fw, ns / nw
+lines = [
+ "# accrue benchmark results", "",
+ f"Machine: {machine}. Produced by `tools/bench/run.sh`; medians of 5 repetitions for the kernel.", "",
+ "| figure | value | target |", "|---|---|---|",
+ f"| chain kernel (decode + counts→volts + baseline + integrate, one 24-bit channel) | {chain/1e6:.1f} M samples/s | ≥ 20 M samples/s |",
+ f"| plain decode-and-sum of the same frames (limit, same run) | {plain/1e6:.1f} M samples/s | — |",
+ f"| kernel time ÷ plain loop time | {plain/chain:.2f}× | ≤ 3× |",
+ f"| end to end, paced at {ps/pw/1e6:.2f} M samples/s for {pw:.0f} s | shed {pshed} | 0 shed |",
+ f"| daemon CPU per million samples (paced run) | {pc/ps*1e6:.3f} s | — |",
+ f"| end to end, unpaced ({fs/1e6:.1f} M samples) | {fs/fw/1e6:.2f} M samples/s, shed {fshed} | ≥ 1 M samples/s |",
+ f"| daemon CPU per million samples (unpaced) | {fc/fs*1e6:.3f} s | — |",
+ f"| store size per sample, raw + derived (unpaced run) | {fb/fs:.2f} bytes | ≤ 2.0 bytes (raw) |",
+ f"| naive Python logger (row per sample, commit per frame) | {naive_rate/1e3:.1f} k samples/s, {nb/ns:.1f} bytes/sample | — |",
+ f"| accrue ÷ naive throughput | {acc_rate/naive_rate:.0f}× | — |",
+ f"| naive ÷ accrue bytes per sample | {(nb/ns)/(fb/fs):.1f}× | — |",
+ "",
+]
+open(out, "w").write("\n".join(lines) + "\n")
+print("\n".join(lines))
+PY
