@@ -24,7 +24,7 @@ std::size_t Batch::derived_bytes() const {
 }
 
 struct Writer::Statements {
-  Statement board, board_id, run, run_end, raw, series, segment, baseline, event, checkpoint;
+  Statement board, board_id, run, run_end, raw, series, segment, baseline, event, checkpoint, calibration;
 };
 
 Writer::Writer(std::unique_ptr<Database> db, WriterSettings settings, Clock clock)
@@ -39,6 +39,7 @@ Status Writer::open(const std::string& path, WriterSettings settings, Clock cloc
   if (Status s = migrate(*db); !s.ok()) return s;
   std::unique_ptr<Writer> w(new Writer(std::move(db), settings, std::move(clock)));
   if (Status s = w->prepare_statements(); !s.ok()) return s;
+  if (Status s = w->load_calibrations(); !s.ok()) return s;
   out = std::move(w);
   return Status::success();
 }
@@ -55,6 +56,9 @@ Status Writer::prepare_statements() {
        " channel_count = excluded.channel_count, adc_bits = excluded.adc_bits, full_scale_v = excluded.full_scale_v,"
        " capabilities = excluded.capabilities"},
       {&st_->board_id, "SELECT board_id FROM board WHERE serial = ?"},
+      {&st_->calibration,
+       "INSERT INTO calibration(calibration_id, channel, created_utc, quantity, unit, quantity_per_volt, definition)"
+       " VALUES(?,?,?,?,?,?,?)"},
       {&st_->run, "INSERT INTO run(run_id, board_id, started_utc, sample_period_s, utc_at_index0) VALUES(?,?,?,?,?)"},
       {&st_->run_end, "UPDATE run SET ended_utc = ?, end_reason = ? WHERE run_id = ?"},
       {&st_->raw,
@@ -82,41 +86,56 @@ Status Writer::prepare_statements() {
   return Status::success();
 }
 
-Status Writer::ensure_calibration(int channel, chain::Calibration& cal) {
-  nlohmann::json def = {
+static std::string calibration_definition(const chain::Calibration& cal) {
+  const nlohmann::json def = {
       {"adc", {{"bits", cal.adc.bits}, {"zero_code", cal.adc.zero_code}, {"full_scale_v", cal.adc.full_scale_v},
                {"gain", cal.adc.gain}, {"bipolar", cal.adc.bipolar}}},
       {"front_end", {{"r1_ohm", cal.front_end.r1_ohm}, {"c_farad", cal.front_end.c_farad},
                      {"r2_ohm", cal.front_end.r2_ohm}, {"inverting", cal.front_end.inverting}}},
       {"sensor", std::string(chain::to_string(cal.sensor))}};
-  const std::string text = def.dump();
-  Statement find;
-  if (Status s = db_->prepare(
-          "SELECT calibration_id FROM calibration WHERE channel = ? AND definition = ? ORDER BY calibration_id DESC LIMIT 1",
-          find);
-      !s.ok())
-    return s;
-  find.bind(1, std::int64_t(channel)).bind(2, text);
-  bool row = false;
-  if (Status s = find.step(&row); !s.ok()) return s;
-  if (row) {
-    cal.id = find.column_int(0);
-    return Status::success();
+  return def.dump();
+}
+
+Status Writer::load_calibrations() {
+  Statement st;
+  if (Status s = db_->prepare("SELECT calibration_id, channel, definition FROM calibration", st); !s.ok()) return s;
+  for (bool row = true;;) {
+    if (Status s = st.step(&row); !s.ok()) return s;
+    if (!row) break;
+    const std::int64_t id = st.column_int(0);
+    // The newest version with a given definition wins, as it would for a new lookup.
+    auto& slot = calibration_ids_[{int(st.column_int(1)), st.column_text(2)}];
+    slot = std::max(slot, id);
+    next_calibration_id_ = std::max(next_calibration_id_, id + 1);
   }
-  Statement insert;
-  if (Status s = db_->prepare(
-          "INSERT INTO calibration(channel, created_utc, quantity, unit, quantity_per_volt, definition) VALUES(?,?,?,?,?,?)",
-          insert);
-      !s.ok())
-    return s;
-  insert.bind(1, std::int64_t(channel))
-      .bind(2, rfc3339_utc(clock_()))
-      .bind(3, cal.quantity_name())
-      .bind(4, cal.unit())
-      .bind(5, cal.quantity_per_volt())
-      .bind(6, text);
-  if (Status s = insert.run(); !s.ok()) return s;
-  cal.id = sqlite3_last_insert_rowid(db_->handle());
+  return Status::success();
+}
+
+Status Writer::ensure_calibration(int channel, chain::Calibration& cal) {
+  std::string text = calibration_definition(cal);
+  std::lock_guard lock(mutex_);
+  auto [it, inserted] = calibration_ids_.try_emplace({channel, text}, next_calibration_id_);
+  cal.id = it->second;
+  if (!inserted) return Status::success();
+  ++next_calibration_id_;
+  // Written by the writer thread at the start of its next transaction, before
+  // any row that names it (every batch that can name it is submitted later).
+  new_calibrations_.push_back({cal.id, channel, clock_(), std::string(cal.quantity_name()), std::string(cal.unit()),
+                               cal.quantity_per_volt(), std::move(text)});
+  return Status::success();
+}
+
+Status Writer::write_calibrations(const std::vector<CalibrationRow>& rows) {
+  for (const auto& c : rows) {
+    st_->calibration.bind(1, c.id)
+        .bind(2, std::int64_t(c.channel))
+        .bind(3, rfc3339_utc(c.created_unix))
+        .bind(4, c.quantity)
+        .bind(5, c.unit)
+        .bind(6, c.quantity_per_volt)
+        .bind(7, c.definition);
+    if (Status s = st_->calibration.run(); !s.ok()) return s;
+  }
   return Status::success();
 }
 
@@ -178,12 +197,15 @@ void Writer::stop() {
     // Never started (or stopped before the thread ran): commit here.
     std::deque<Batch> pending;
     pending.swap(queue_);
-    (void)commit(pending);
+    std::vector<CalibrationRow> calibrations;
+    calibrations.swap(new_calibrations_);
+    (void)commit(pending, calibrations);
   }
 }
 
 void Writer::thread_main() {
   std::deque<Batch> pending;  // taken from the queue, not yet committed
+  std::vector<CalibrationRow> calibrations;  // likewise
   int failures_at_stop = 0;
   for (;;) {
     bool stopping = false;
@@ -195,9 +217,11 @@ void Writer::thread_main() {
         pending.push_back(std::move(queue_.front()));
         queue_.pop_front();
       }
+      for (auto& c : new_calibrations_) calibrations.push_back(std::move(c));
+      new_calibrations_.clear();
     }
-    if (!pending.empty()) {
-      const Status s = commit(pending);
+    if (!pending.empty() || !calibrations.empty()) {
+      const Status s = commit(pending, calibrations);
       if (!s.ok() && stopping && ++failures_at_stop >= 3) return;  // logged in counters; nothing more to try
     }
     if (stopping && pending.empty()) {
@@ -207,9 +231,10 @@ void Writer::thread_main() {
   }
 }
 
-Status Writer::commit(std::deque<Batch>& pending) {
+Status Writer::commit(std::deque<Batch>& pending, std::vector<CalibrationRow>& calibrations) {
   std::size_t bytes = 0;
   Status s = db_->exec("BEGIN IMMEDIATE");
+  if (s.ok()) s = write_calibrations(calibrations);
   if (s.ok()) {
     for (const Batch& b : pending) {
       if (s = write_batch(b); !s.ok()) break;
@@ -237,6 +262,7 @@ Status Writer::commit(std::deque<Batch>& pending) {
     }
   }
   pending.clear();
+  calibrations.clear();
   return s;
 }
 

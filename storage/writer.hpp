@@ -21,6 +21,8 @@
 #include <mutex>
 #include <string>
 #include <thread>
+#include <utility>
+#include <vector>
 
 #include "daemon/chain/calibration.hpp"
 #include "storage/batch.hpp"
@@ -58,8 +60,9 @@ class Writer {
   static Status open(const std::string& path, WriterSettings settings, Clock clock, std::unique_ptr<Writer>& out);
   ~Writer();
 
-  // Before start(): the stored id of a calibration with exactly this definition,
-  // inserting a new immutable version when none matches.
+  // Sets calibration.id to the stored version with exactly this definition, or
+  // to a new immutable version written before the next batch. Thread-safe;
+  // never touches the disk.
   Status ensure_calibration(int channel, chain::Calibration& calibration);
   // Before start(): the next free run id.
   Status next_run_id(std::int64_t& out);
@@ -72,9 +75,19 @@ class Writer {
 
  private:
   Writer(std::unique_ptr<Database> db, WriterSettings settings, Clock clock);
+  struct CalibrationRow {
+    std::int64_t id;
+    int channel;
+    double created_unix;
+    std::string quantity, unit;
+    double quantity_per_volt;
+    std::string definition;
+  };
   Status prepare_statements();
+  Status load_calibrations();
+  Status write_calibrations(const std::vector<CalibrationRow>& rows);
   void thread_main();
-  Status commit(std::deque<Batch>& pending);
+  Status commit(std::deque<Batch>& pending, std::vector<CalibrationRow>& calibrations);
   Status write_batch(const Batch& b);
 
   std::unique_ptr<Database> db_;
@@ -86,6 +99,9 @@ class Writer {
   mutable std::mutex mutex_;
   std::condition_variable wake_;
   std::deque<Batch> queue_;
+  std::map<std::pair<int, std::string>, std::int64_t> calibration_ids_;  // (channel, definition) -> id
+  std::int64_t next_calibration_id_ = 1;
+  std::vector<CalibrationRow> new_calibrations_;
   bool stopping_ = false;
   bool shed_notice_pending_ = false;
   WriterCounters counters_;
