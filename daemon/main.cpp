@@ -11,6 +11,7 @@
 #include "daemon/api/methods.hpp"
 #include "daemon/api/server.hpp"
 #include "daemon/asio.hpp"
+#include "daemon/capture.hpp"
 #include "daemon/ingest.hpp"
 #include "daemon/options.hpp"
 #include "daemon/port_finder.hpp"
@@ -38,6 +39,9 @@ options:
   --database FILE      SQLite file (default accrue.db)
   --socket PATH        JSON-RPC Unix socket (default accrued.sock)
   --log-level LEVEL    error, warning, notice, info (default), debug
+  --record FILE        also write every byte read, with its receive time, to a capture FILE
+  --replay FILE        feed a capture through the full daemon path into --database,
+                       as fast as it goes, then exit (no device, no socket)
   --check-config FILE  validate FILE, print every error, exit 0 if valid
   --list-ports         list serial ports with their USB ids and exit
   --help               this text
@@ -114,6 +118,14 @@ int main(int argc, char** argv) {
       const std::string* v = value("--socket");
       if (!v) return 2;
       config.socket_path = *v;
+    } else if (a == "--record") {
+      const std::string* v = value("--record");
+      if (!v) return 2;
+      config.record_path = *v;
+    } else if (a == "--replay") {
+      const std::string* v = value("--replay");
+      if (!v) return 2;
+      config.replay_path = *v;
     } else if (a == "--log-level") {
       const std::string* v = value("--log-level");
       if (!v) return 2;
@@ -154,12 +166,43 @@ int main(int argc, char** argv) {
   }
   writer->start();
 
+  if (!config.replay_path.empty()) {
+    std::uint64_t records = 0;
+    const ReplayResult r = read_capture(config.replay_path, [&](std::span<const std::uint8_t> bytes, double t) {
+      ingest.on_bytes(bytes, t);
+      if (++records % 256 == 0) ingest.flush();
+    });
+    ingest.flush();
+    writer->stop();
+    if (!r.ok) {
+      log.error(r.error);
+      return 1;
+    }
+    if (r.truncated_tail) log.warning("the capture's last record was cut short; replayed everything before it");
+    const auto w = writer->counters();
+    log.info("replayed " + std::to_string(r.records) + " records, " + std::to_string(r.bytes) + " bytes; " +
+             std::to_string(ingest.counters().samples) + " samples into " + config.database);
+    return w.last_error.empty() ? 0 : 1;
+  }
+  CaptureWriter capture;
+  if (!config.record_path.empty()) {
+    std::string why;
+    if (!capture.open(config.record_path, why)) {
+      log.error(why);
+      writer->stop();
+      return 1;
+    }
+  }
+
   asio::io_context io(1);
   std::uint16_t next_request_id = 1;
   SerialLink* link_ptr = nullptr;
   SerialLink link(
       io, LinkSettings{config.device, unsigned(config.baud), config.reconnect_max_s}, log, unix_now,
-      [&](std::span<const std::uint8_t> bytes, double t) { ingest.on_bytes(bytes, t); },
+      [&](std::span<const std::uint8_t> bytes, double t) {
+        capture.append(bytes, t);  // buffered; a failed capture stops itself and never blocks ingest's data
+        ingest.on_bytes(bytes, t);
+      },
       [&] {
         // Ask the board who it is, so a daemon started mid-stream learns the identity.
         link_ptr->send(protocol::encode(protocol::BoardCommand{next_request_id++, protocol::CommandOp::identify, 0}));
@@ -223,6 +266,8 @@ int main(int argc, char** argv) {
 
   // Final flush: everything accepted is committed before exit.
   ingest.flush();
+  capture.close();
+  if (capture.failed()) log.warning("the capture file could not be written completely: " + config.record_path);
   writer->stop();
   const auto w = writer->counters();
   if (w.queued_bytes > 0 || !w.last_error.empty())

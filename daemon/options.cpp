@@ -142,7 +142,7 @@ std::vector<ConfigError> load_config(const std::string& path, DaemonConfig& conf
 
 std::vector<ConfigError> validate(const DaemonConfig& config) {
   std::vector<ConfigError> errors;
-  if (config.device.empty()) errors.push_back({"device", "is required (a path, usb-serial:SERIAL or usb-id:VVVV:PPPP)"});
+  if (config.device.empty() && config.replay_path.empty()) errors.push_back({"device", "is required (a path, usb-serial:SERIAL or usb-id:VVVV:PPPP)"});
   if (config.database.empty()) errors.push_back({"database", "must not be empty"});
   if (config.socket_path.empty()) errors.push_back({"socket", "must not be empty"});
   if (config.socket_path.size() >= 108) errors.push_back({"socket", "path is longer than a Unix socket allows (107)"});

@@ -32,6 +32,8 @@ struct DaemonConfig {
   double reconnect_max_s = 30.0;
   LogLevel log_level = LogLevel::info;
   std::map<int, ChannelConfig> channels;
+  std::string record_path;  // when set, every byte read is also written to this capture file
+  std::string replay_path;  // when set, the capture is fed through the daemon instead of a device
 };
 
 struct ConfigError {
