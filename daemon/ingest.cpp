@@ -136,7 +136,13 @@ void Ingest::start_run(const BoardIdentity& id, double receive_unix, std::option
     run.rows.push_back(std::move(rows));
   }
   run_ = std::move(run);
-  if (resumed) event("run_resumed", "daemon restart", first_index);
+  if (resumed) {
+    // What the daemon missed while it was down: the next segment's gap estimate covers it.
+    std::uint64_t last = 0;
+    for (const auto& c : resume_checkpoints_) last = std::max(last, c.last_index);
+    event("run_resumed", "daemon restart; missing_samples=" + std::to_string(*first_index - last - 1) +
+                             " estimated from the rates either side", first_index);
+  }
 }
 
 void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {

@@ -329,7 +329,14 @@ Status Writer::write_batch(const Batch& b) {
           .bind(10, g.residual_rms_v);
       if (Status s = st.baseline.run(); !s.ok()) return s;
     }
-    for (const auto& g : c.output.segments) {
+    // A checkpoint's open segment is stored provisionally under the ordinal it
+    // will keep, so the segment rows always add up to the committed total; the
+    // closed segment replaces it later.
+    std::vector<const chain::SegmentRecord*> segments;
+    for (const auto& g : c.output.segments) segments.push_back(&g);
+    if (c.checkpoint && c.checkpoint->open_segment) segments.push_back(&*c.checkpoint->open_segment);
+    for (const chain::SegmentRecord* seg : segments) {
+      const auto& g = *seg;
       st.segment.bind(1, c.run_id)
           .bind(2, ch)
           .bind(3, std::int64_t(g.ordinal))

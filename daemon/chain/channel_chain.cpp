@@ -210,7 +210,10 @@ void ChannelChain::finish(ChainOutput& out) {
 TotalSnapshot ChannelChain::snapshot() const {
   TotalSnapshot t;
   t.state = state_;
-  if (!windows_.empty()) account_open_segment(t.state);
+  if (!windows_.empty()) {
+    t.open_segment = account_open_segment(t.state);
+    t.open_segment->flags |= segment_flag::provisional;
+  }
   t.state.last_index = std::max(t.state.last_index, last_index_);
   t.last_index = t.state.last_index;
   t.total = t.state.total_v * calibration_.quantity_per_volt();

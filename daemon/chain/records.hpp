@@ -3,6 +3,7 @@
 // All voltages are integrator output volts; quantities are in the channel's SI
 // unit (Calibration::unit()). Plain data, no behaviour.
 #include <cstdint>
+#include <optional>
 #include <vector>
 
 namespace accrue::chain {
@@ -78,6 +79,9 @@ struct ChainState {
 
 struct TotalSnapshot {
   std::uint64_t last_index = 0;
+  // The open segment as if it ended at last_index (flag provisional); its
+  // ordinal is the one the segment will keep when it closes.
+  std::optional<SegmentRecord> open_segment;
   double total = 0.0;
   double std_uncertainty = 0.0;  // k = 1
   std::uint32_t segments = 0;
