@@ -178,8 +178,7 @@ void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
   raw.channel_count = b.channel_count;
   raw.status = b.status;
   raw.samples = b.samples_per_channel;
-  raw.data.reserve(b.codes.size() * 3);
-  for (std::int32_t c : b.codes) protocol::wire::put_i24(raw.data, c);
+  raw.codes = b.codes;  // the writer encodes them on its own thread
   batch_.raw.push_back(std::move(raw));
 
   for (std::size_t c = 0; c < run.chains.size(); ++c) {

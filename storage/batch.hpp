@@ -30,7 +30,7 @@ struct RawBlockRow {
   std::uint8_t channel_count = 1;
   std::uint8_t status = 0;
   std::uint16_t samples = 0;  // per channel
-  std::vector<std::uint8_t> data;  // encoding 1: packed 24-bit, interleaved
+  std::vector<std::int32_t> codes;  // ADC codes interleaved by sample; the writer encodes them
 };
 
 struct ChannelRows {

@@ -1,26 +1,29 @@
 #include "storage/migrations.hpp"
 
+#include <iterator>
 #include <string>
 
 #include "storage/schema_sql.hpp"
 
 namespace accrue::storage {
-namespace {
 
-// migrations[v] takes a file from version v to v + 1.
-const char* const kMigrations[] = {kSchemaSql};
-static_assert(std::size(kMigrations) == kSchemaVersion);
+static_assert(std::size(kMigrationTexts) == kSchemaVersion,
+              "storage/migrations/ must hold exactly one file per schema version");
 
-Status user_version(Database& db, int& out) {
+Status check_schema_version(Database& db, int& version) {
   Statement st;
   if (Status s = db.prepare("PRAGMA user_version", st); !s.ok()) return s;
   bool row = false;
   if (Status s = st.step(&row); !s.ok()) return s;
-  out = row ? int(st.column_int(0)) : 0;
+  version = row ? int(st.column_int(0)) : 0;
+  if (version > kSchemaVersion || version < 0) {
+    return Status::error(SQLITE_MISMATCH, "database schema version " + std::to_string(version) +
+                                              " is newer than this accrued understands (" +
+                                              std::to_string(kSchemaVersion) +
+                                              "); refusing to touch it (use a newer accrued)");
+  }
   return Status::success();
 }
-
-}  // namespace
 
 Status configure_writer_connection(Database& db) {
   if (Status s = db.exec("PRAGMA journal_mode = WAL"); !s.ok()) return s;
@@ -29,27 +32,24 @@ Status configure_writer_connection(Database& db) {
   return db.exec("PRAGMA foreign_keys = ON");
 }
 
-Status migrate(Database& db) {
+Status migrate_to(Database& db, int target) {
   int version = 0;
-  if (Status s = user_version(db, version); !s.ok()) return s;
-  if (version > kSchemaVersion) {
-    return Status::error(SQLITE_MISMATCH, "database schema version " + std::to_string(version) +
-                                              " is newer than this accrued understands (" +
-                                              std::to_string(kSchemaVersion) + "); refusing to touch it");
-  }
-  if (version == kSchemaVersion) return Status::success();
+  if (Status s = check_schema_version(db, version); !s.ok()) return s;
+  if (target > kSchemaVersion) return Status::error(SQLITE_MISUSE, "no migration to version " + std::to_string(target));
+  if (version >= target) return Status::success();
   if (Status s = db.exec("BEGIN IMMEDIATE"); !s.ok()) return s;
-  for (int v = version; v < kSchemaVersion; ++v) {
-    if (Status s = db.exec(kMigrations[v]); !s.ok()) {
-      (void)db.exec("ROLLBACK");
-      return Status::error(s.code, "migration to schema version " + std::to_string(v + 1) + " failed: " + s.message);
+  for (int v = version; v < target; ++v) {
+    Status s = db.exec(kMigrationTexts[v].sql);
+    if (s.ok()) s = db.exec("PRAGMA user_version = " + std::to_string(v + 1));
+    if (!s.ok()) {
+      (void)db.exec("ROLLBACK");  // the migration's own error is the one to report
+      return Status::error(s.code, "migration " + std::string(kMigrationTexts[v].file) + " (to schema version " +
+                                       std::to_string(v + 1) + ") failed: " + s.message);
     }
-  }
-  if (Status s = db.exec("PRAGMA user_version = " + std::to_string(kSchemaVersion)); !s.ok()) {
-    (void)db.exec("ROLLBACK");
-    return s;
   }
   return db.exec("COMMIT");
 }
+
+Status migrate(Database& db) { return migrate_to(db, kSchemaVersion); }
 
 }  // namespace accrue::storage

@@ -2,7 +2,9 @@
 
 #include <algorithm>
 
+#include "storage/block_codec.hpp"
 #include "storage/chain_state_json.hpp"
+#include "storage/rollup.hpp"
 
 namespace accrue::storage {
 namespace {
@@ -100,22 +102,81 @@ Status Reader::checkpoints(std::vector<CheckpointRow>& out) {
   return Status::success();
 }
 
+namespace {
+
+std::int64_t clamp_index(std::uint64_t v) { return std::int64_t(std::min<std::uint64_t>(v, INT64_MAX)); }
+
+void add_cost(const Statement& st, WindowResult& out) {
+  out.vm_steps += std::uint64_t(sqlite3_stmt_status(st.raw(), SQLITE_STMTSTATUS_VM_STEP, 0));
+  out.fullscan_steps += std::uint64_t(sqlite3_stmt_status(st.raw(), SQLITE_STMTSTATUS_FULLSCAN_STEP, 0));
+}
+
+// One index found with a single index seek (ORDER BY ... LIMIT 1).
+Status seek_index(Database& db, const char* sql, std::int64_t run_id, int channel, std::int64_t bound,
+                  std::optional<std::uint64_t>& found, std::optional<std::uint64_t>& samples, WindowResult& cost) {
+  found.reset();
+  Statement st;
+  if (Status s = db.prepare(sql, st); !s.ok()) return s;
+  st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, bound);
+  bool row = false;
+  if (Status s = st.step(&row); !s.ok()) return s;
+  if (row) {
+    found = std::uint64_t(st.column_int(0));
+    samples = std::uint64_t(st.column_int(1));
+    ++cost.rows_read;
+  }
+  add_cost(st, cost);
+  return Status::success();
+}
+
+}  // namespace
+
 Status Reader::window(const WindowQuery& q, WindowResult& out) {
   out = WindowResult{};
   std::optional<RunInfo> run;
   if (Status s = q.run_id ? run_by_id(*q.run_id, run) : latest_run(run); !s.ok()) return s;
   if (!run) return Status::error(SQLITE_NOTFOUND, q.run_id ? "no such run" : "no runs recorded yet");
   out.run = *run;
-  Statement st;
-  if (Status s = db_->prepare(
-          "SELECT p.first_index, p.samples, p.min_v, p.max_v, p.mean_v, p.last_v, p.total, p.total_u, c.quantity, c.unit"
-          " FROM series_point p JOIN calibration c USING (calibration_id)"
-          " WHERE p.run_id = ? AND p.channel = ? AND p.first_index BETWEEN ? AND ? ORDER BY p.first_index",
-          st);
+  // The window's real extent, by index seeks (cost independent of the span).
+  std::optional<std::uint64_t> lo, hi, point_samples, ignored;
+  if (Status s = seek_index(*db_,
+                            "SELECT first_index, samples FROM series_point WHERE run_id = ? AND channel = ? AND"
+                            " first_index >= ? ORDER BY first_index LIMIT 1",
+                            run->run_id, q.channel, clamp_index(q.from_index), lo, point_samples, out);
       !s.ok())
     return s;
-  const auto clamp = [](std::uint64_t v) { return std::int64_t(std::min<std::uint64_t>(v, INT64_MAX)); };
-  st.bind(1, run->run_id).bind(2, std::int64_t(q.channel)).bind(3, clamp(q.from_index)).bind(4, clamp(q.to_index));
+  if (Status s = seek_index(*db_,
+                            "SELECT first_index, samples FROM series_point WHERE run_id = ? AND channel = ? AND"
+                            " first_index <= ? ORDER BY first_index DESC LIMIT 1",
+                            run->run_id, q.channel, clamp_index(q.to_index), hi, ignored, out);
+      !s.ok())
+    return s;
+  if (!lo || !hi || *hi < *lo) return Status::success();  // nothing in the window
+  const double series_interval_s = double(point_samples.value_or(1)) * run->sample_period_s;
+  const auto width = rollup::choose_tier(*lo, *hi, q.max_points, run->sample_period_s, series_interval_s);
+  Statement st;
+  if (width) {
+    out.tier_width_s = *width;
+    const std::uint64_t w = rollup::width_samples(*width, run->sample_period_s);
+    if (Status s = db_->prepare(
+            "SELECT o.first_index, o.samples, o.min_v, o.max_v, o.sum_v / o.samples, o.last_v, o.total, o.total_u,"
+            " c.quantity, c.unit FROM rollup o JOIN calibration c USING (calibration_id)"
+            " WHERE o.run_id = ? AND o.channel = ? AND o.width_s = ? AND o.bucket BETWEEN ? AND ? ORDER BY o.bucket",
+            st);
+        !s.ok())
+      return s;
+    st.bind(1, run->run_id).bind(2, std::int64_t(q.channel)).bind(3, *width);
+    st.bind(4, clamp_index(*lo / w)).bind(5, clamp_index(*hi / w));
+  } else {
+    if (Status s = db_->prepare(
+            "SELECT p.first_index, p.samples, p.min_v, p.max_v, p.mean_v, p.last_v, p.total, p.total_u, c.quantity, c.unit"
+            " FROM series_point p JOIN calibration c USING (calibration_id)"
+            " WHERE p.run_id = ? AND p.channel = ? AND p.first_index BETWEEN ? AND ? ORDER BY p.first_index",
+            st);
+        !s.ok())
+      return s;
+    st.bind(1, run->run_id).bind(2, std::int64_t(q.channel)).bind(3, std::int64_t(*lo)).bind(4, std::int64_t(*hi));
+  }
   std::vector<WindowPoint> rows;
   for (bool row = true;;) {
     if (Status s = st.step(&row); !s.ok()) return s;
@@ -136,7 +197,8 @@ Status Reader::window(const WindowQuery& q, WindowResult& out) {
     }
     rows.push_back(p);
   }
-  out.rows_read = rows.size();
+  add_cost(st, out);
+  out.rows_read += rows.size();
   // Merge neighbouring points so at most max_points come back.
   const std::size_t per = q.max_points == 0 ? 1 : (rows.size() + q.max_points - 1) / std::max<std::size_t>(1, q.max_points);
   if (per <= 1) {
@@ -158,6 +220,39 @@ Status Reader::window(const WindowQuery& q, WindowResult& out) {
     }
     m.mean_v = weighted / double(std::max<std::uint64_t>(1, m.samples));
     out.points.push_back(m);
+  }
+  return Status::success();
+}
+
+Status Reader::raw_blocks(std::int64_t run_id, std::uint64_t from_index, std::uint64_t to_index,
+                          std::vector<RawBlock>& out) {
+  out.clear();
+  Statement st;
+  if (Status s = db_->prepare(
+          "SELECT first_index, channel_count, samples, status, encoding, data FROM raw_block"
+          " WHERE run_id = ? AND first_index BETWEEN ? AND ? ORDER BY first_index",
+          st);
+      !s.ok())
+    return s;
+  st.bind(1, run_id).bind(2, clamp_index(from_index)).bind(3, clamp_index(to_index));
+  for (bool row = true;;) {
+    if (Status s = st.step(&row); !s.ok()) return s;
+    if (!row) break;
+    RawBlock b;
+    b.run_id = run_id;
+    b.first_index = std::uint64_t(st.column_int(0));
+    b.channel_count = int(st.column_int(1));
+    b.samples = std::uint32_t(st.column_int(2));
+    b.status = std::uint32_t(st.column_int(3));
+    b.encoding = int(st.column_int(4));
+    const auto* data = static_cast<const std::uint8_t*>(sqlite3_column_blob(st.raw(), 5));
+    const std::size_t size = std::size_t(sqlite3_column_bytes(st.raw(), 5));
+    if (Status s = block_codec::decode(b.encoding, std::span<const std::uint8_t>(data, size), b.channel_count,
+                                       std::size_t(b.channel_count) * b.samples, b.codes);
+        !s.ok())
+      return Status::error(s.code, "run " + std::to_string(run_id) + " block at " + std::to_string(b.first_index) +
+                                       ": " + s.message);
+    out.push_back(std::move(b));
   }
   return Status::success();
 }

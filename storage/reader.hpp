@@ -1,6 +1,12 @@
 #pragma once
 // Reader answers queries from its own read-only connection, so it never takes
-// the writer's lock beyond what WAL requires. One Reader per thread.
+// the writer's lock beyond what WAL requires; every query is one short read
+// transaction, so a Reader never pins the WAL. One Reader per thread.
+//
+// window() returns at most max_points points over an index range from the
+// coarsest rollup tier that still has max_points buckets there (series points
+// when none has), merging neighbours down to max_points: it reads fewer than
+// 10 * (max_points + 1) rows whatever the span (see storage/rollup.hpp).
 #include <cstdint>
 #include <memory>
 #include <optional>
@@ -58,7 +64,21 @@ struct WindowResult {
   RunInfo run;
   std::string quantity, unit;
   std::vector<WindowPoint> points;
-  std::uint64_t rows_read = 0;
+  std::int64_t tier_width_s = 0;  // rollup width read; 0: series points
+  std::uint64_t rows_read = 0;    // rows stepped over, all statements of the query
+  std::uint64_t vm_steps = 0;     // sqlite3_stmt_status(SQLITE_STMTSTATUS_VM_STEP), summed
+  std::uint64_t fullscan_steps = 0;  // SQLITE_STMTSTATUS_FULLSCAN_STEP, summed (0: every read used an index)
+};
+
+// One stored raw block, decoded.
+struct RawBlock {
+  std::int64_t run_id = 0;
+  std::uint64_t first_index = 0;
+  int channel_count = 1;
+  std::uint32_t samples = 0;  // per channel
+  std::uint32_t status = 0;
+  int encoding = 0;
+  std::vector<std::int32_t> codes;  // interleaved by sample
 };
 
 class Reader {
@@ -68,6 +88,8 @@ class Reader {
   Status latest_run(std::optional<RunInfo>& out);
   Status checkpoints(std::vector<CheckpointRow>& out);
   Status window(const WindowQuery& q, WindowResult& out);
+  // Raw blocks of a run whose first_index lies in [from_index, to_index], decoded.
+  Status raw_blocks(std::int64_t run_id, std::uint64_t from_index, std::uint64_t to_index, std::vector<RawBlock>& out);
 
  private:
   explicit Reader(std::unique_ptr<Database> db) : db_(std::move(db)) {}

@@ -1,4 +1,10 @@
--- accrue storage schema, version 1 (PRAGMA user_version = 1).
+-- accrue storage schema, version 2 (PRAGMA user_version = 2).
+--
+-- This file documents the whole current layout. The daemon never runs it: it
+-- applies storage/migrations/NNNN_*.sql in order (embedded at build time) and
+-- sets user_version after each; a test checks that migrating an empty file
+-- gives exactly the tables, columns and views below. A file whose
+-- user_version is newer than this build's is refused and left untouched.
 -- One SQLite file in WAL mode per daemon instance. Times are board sample
 -- indices; a run's clock model (utc_at_index0, sample_period_s) maps them to
 -- UTC. Voltages are integrator output volts; quantities are in the unit of the
@@ -39,7 +45,11 @@ CREATE TABLE calibration (
 );
 
 -- Raw ADC codes, a block per frame as the board sent it (not a row per sample).
--- encoding 1: packed little-endian 24-bit two's complement, interleaved by sample.
+-- Codes are interleaved by sample (s0c0 s0c1 ... s1c0 ...).
+-- encoding 1: packed little-endian 24-bit two's complement (version 1 files).
+-- encoding 2: per channel, the difference from that channel's previous code
+--             (the first from 0), zigzag-mapped to unsigned and written as
+--             LEB128 varints (storage/block_codec.hpp). The writer uses 2.
 CREATE TABLE raw_block (
   run_id            INTEGER NOT NULL REFERENCES run(run_id),
   first_index       INTEGER NOT NULL,
@@ -130,7 +140,44 @@ CREATE TABLE total_checkpoint (
   committed_utc     TEXT    NOT NULL
 );
 
+-- Coarser summaries of series_point, one row per channel per bucket of
+-- width_s seconds, kept up to date by the writer in the same transaction as
+-- the series points they summarise. bucket = first_index / round(width_s /
+-- sample_period_s): a series point belongs to the bucket of its first sample.
+CREATE TABLE rollup (
+  run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  channel           INTEGER NOT NULL,
+  width_s           INTEGER NOT NULL,   -- 10, 60, 600, 3600, 21600, 86400
+  bucket            INTEGER NOT NULL,
+  first_index       INTEGER NOT NULL,   -- first sample of the first series point in the bucket
+  last_point_index  INTEGER NOT NULL,   -- first_index of the newest series point folded in
+  points            INTEGER NOT NULL,   -- series points folded in
+  samples           INTEGER NOT NULL,
+  min_v             REAL    NOT NULL,
+  max_v             REAL    NOT NULL,
+  sum_v             REAL    NOT NULL,   -- sum of output volts over the samples (mean = sum_v / samples)
+  last_v            REAL    NOT NULL,
+  total             REAL    NOT NULL,   -- running total at the bucket's last sample
+  total_u           REAL    NOT NULL,
+  calibration_id    INTEGER NOT NULL REFERENCES calibration(calibration_id),
+  PRIMARY KEY (run_id, channel, width_s, bucket)
+) WITHOUT ROWID;
+
+CREATE VIEW rollup_utc AS
+SELECT o.run_id, o.channel, o.width_s,
+       strftime('%Y-%m-%dT%H:%M:%fZ', r.utc_at_index0 + o.first_index * r.sample_period_s, 'unixepoch') AS utc,
+       o.samples, o.min_v, o.max_v, o.sum_v / o.samples AS mean_v, o.last_v, o.total, o.total_u, c.unit
+FROM rollup o JOIN run r USING (run_id) JOIN calibration c USING (calibration_id);
+
+CREATE VIEW raw_block_utc AS
+SELECT b.run_id,
+       strftime('%Y-%m-%dT%H:%M:%fZ', r.utc_at_index0 + b.first_index * r.sample_period_s, 'unixepoch') AS utc,
+       b.first_index, b.channel_count, b.samples, b.samples * r.sample_period_s AS length_s, b.status,
+       b.encoding, length(b.data) AS bytes
+FROM raw_block b JOIN run r USING (run_id);
+
 -- Views for analysts (sqlite3 shell, pandas): UTC times and units.
+-- rollup_utc and raw_block_utc are defined above with their tables.
 CREATE VIEW series_utc AS
 SELECT p.run_id, p.channel,
        strftime('%Y-%m-%dT%H:%M:%fZ', r.utc_at_index0 + p.first_index * r.sample_period_s, 'unixepoch') AS utc,

@@ -1,8 +1,12 @@
 #include "storage/writer.hpp"
 
+#include <sys/statvfs.h>
+
 #include <nlohmann/json.hpp>
 
+#include "storage/block_codec.hpp"
 #include "storage/chain_state_json.hpp"
+#include "storage/rollup.hpp"
 #include "storage/migrations.hpp"
 #include "storage/utc.hpp"
 
@@ -10,7 +14,7 @@ namespace accrue::storage {
 
 std::size_t Batch::raw_bytes() const {
   std::size_t n = 0;
-  for (const auto& r : raw) n += r.data.size() + 32;
+  for (const auto& r : raw) n += r.codes.size() * sizeof(std::int32_t) + 32;
   return n;
 }
 
@@ -24,24 +28,71 @@ std::size_t Batch::derived_bytes() const {
 }
 
 struct Writer::Statements {
-  Statement board, board_id, run, run_end, raw, series, segment, baseline, event, checkpoint, calibration;
+  Statement board, board_id, run, run_end, raw, series, segment, baseline, event, checkpoint, calibration, rollup,
+      period;
 };
 
-Writer::Writer(std::unique_ptr<Database> db, WriterSettings settings, Clock clock)
-    : db_(std::move(db)), settings_(settings), clock_(std::move(clock)) {}
+namespace {
+
+std::optional<std::uint64_t> statvfs_free_bytes(const std::string& path) {
+  const auto slash = path.find_last_of('/');
+  const std::string dir = slash == std::string::npos ? "." : (slash == 0 ? "/" : path.substr(0, slash));
+  struct statvfs v {};
+  if (::statvfs(dir.c_str(), &v) != 0) return std::nullopt;
+  return std::uint64_t(v.f_bavail) * std::uint64_t(v.f_frsize);
+}
+
+bool is_full(const Status& s) { return (s.code & 0xFF) == SQLITE_FULL; }
+
+}  // namespace
+
+Writer::Writer(std::unique_ptr<Database> db, WriterSettings settings, Clock clock, FreeBytes free_bytes)
+    : db_(std::move(db)), settings_(settings), clock_(std::move(clock)), free_bytes_(std::move(free_bytes)) {
+  wanted_max_file_bytes_ = settings_.max_file_bytes;
+}
 
 Writer::~Writer() { stop(); }
 
-Status Writer::open(const std::string& path, WriterSettings settings, Clock clock, std::unique_ptr<Writer>& out) {
+Status Writer::open(const std::string& path, WriterSettings settings, Clock clock, std::unique_ptr<Writer>& out,
+                    FreeBytes free_bytes) {
   std::unique_ptr<Database> db;
   if (Status s = Database::open(path, Database::Mode::read_write_create, db); !s.ok()) return s;
+  // Refuse a newer file before WAL mode (or anything else) touches it.
+  int version = 0;
+  if (Status s = check_schema_version(*db, version); !s.ok()) return s;
   if (Status s = configure_writer_connection(*db); !s.ok()) return s;
   if (Status s = migrate(*db); !s.ok()) return s;
-  std::unique_ptr<Writer> w(new Writer(std::move(db), settings, std::move(clock)));
+  // Checkpoints are ours (manage_wal), after commits, so readers see a bounded WAL.
+  if (Status s = db->exec("PRAGMA wal_autocheckpoint = 0"); !s.ok()) return s;
+  if (Status s = db->exec("PRAGMA journal_size_limit = " + std::to_string(settings.journal_size_limit_bytes)); !s.ok())
+    return s;
+  if (!free_bytes) free_bytes = [path] { return statvfs_free_bytes(path); };
+  std::unique_ptr<Writer> w(new Writer(std::move(db), settings, std::move(clock), std::move(free_bytes)));
   if (Status s = w->prepare_statements(); !s.ok()) return s;
   if (Status s = w->load_calibrations(); !s.ok()) return s;
+  if (Status s = w->apply_max_file_bytes(settings.max_file_bytes); !s.ok()) return s;
   out = std::move(w);
   return Status::success();
+}
+
+Status Writer::apply_max_file_bytes(std::uint64_t bytes) {
+  Statement st;
+  if (Status s = db_->prepare("PRAGMA page_size", st); !s.ok()) return s;
+  bool row = false;
+  if (Status s = st.step(&row); !s.ok()) return s;
+  const std::uint64_t page = row ? std::uint64_t(st.column_int(0)) : 4096;
+  // 0 means no cap: SQLite's own maximum.
+  const std::uint64_t pages = bytes == 0 ? 4294967294ull : std::max<std::uint64_t>(1, bytes / page);
+  Statement set;
+  if (Status s = db_->prepare("PRAGMA max_page_count = " + std::to_string(pages), set); !s.ok()) return s;
+  if (Status s = set.run(); !s.ok()) return s;
+  applied_max_file_bytes_ = bytes;
+  return Status::success();
+}
+
+void Writer::set_max_file_bytes(std::uint64_t bytes) {
+  std::lock_guard lock(mutex_);
+  wanted_max_file_bytes_ = bytes;
 }
 
 Status Writer::prepare_statements() {
@@ -63,7 +114,7 @@ Status Writer::prepare_statements() {
       {&st_->run_end, "UPDATE run SET ended_utc = ?, end_reason = ? WHERE run_id = ?"},
       {&st_->raw,
        "INSERT OR REPLACE INTO raw_block(run_id, first_index, channel_count, samples, status, encoding, data)"
-       " VALUES(?,?,?,?,?,1,?)"},
+       " VALUES(?,?,?,?,?,2,?)"},
       {&st_->series,
        "INSERT OR REPLACE INTO series_point(run_id, channel, first_index, samples, min_v, max_v, mean_v, last_v, total,"
        " total_u, calibration_id) VALUES(?,?,?,?,?,?,?,?,?,?,?)"},
@@ -76,6 +127,16 @@ Status Writer::prepare_statements() {
        " slope_v_per_s, slope_se_v_per_s, residual_rms_v) VALUES(?,?,?,?,?,?,?,?,?,?)"},
       {&st_->event,
        "INSERT INTO event(run_id, channel, sample_index, kind, detail, host_utc) VALUES(?,?,?,?,?,?)"},
+      {&st_->rollup,
+       "INSERT INTO rollup(run_id, channel, width_s, bucket, first_index, last_point_index, points, samples, min_v,"
+       " max_v, sum_v, last_v, total, total_u, calibration_id) VALUES(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)"
+       " ON CONFLICT(run_id, channel, width_s, bucket) DO UPDATE SET last_point_index = excluded.last_point_index,"
+       " points = points + excluded.points, samples = samples + excluded.samples, min_v = min(min_v, excluded.min_v),"
+       " max_v = max(max_v, excluded.max_v), sum_v = sum_v + excluded.sum_v, last_v = excluded.last_v,"
+       " total = excluded.total, total_u = excluded.total_u, calibration_id = excluded.calibration_id"
+       // Points already folded in (a re-sent stretch) are not counted twice.
+       " WHERE excluded.first_index > rollup.last_point_index"},
+      {&st_->period, "SELECT sample_period_s FROM run WHERE run_id = ?"},
       {&st_->checkpoint,
        "INSERT OR REPLACE INTO total_checkpoint(channel, run_id, last_index, total, std_uncertainty, segments, flags,"
        " calibration_id, state, committed_utc) VALUES(?,?,?,?,?,?,?,?,?,?)"},
@@ -197,15 +258,14 @@ void Writer::stop() {
     // Never started (or stopped before the thread ran): commit here.
     std::deque<Batch> pending;
     pending.swap(queue_);
-    std::vector<CalibrationRow> calibrations;
-    calibrations.swap(new_calibrations_);
-    (void)commit(pending, calibrations);
+    for (auto& c : new_calibrations_) calibrations_.push_back(std::move(c));
+    new_calibrations_.clear();
+    cycle(pending);
   }
 }
 
 void Writer::thread_main() {
   std::deque<Batch> pending;  // taken from the queue, not yet committed
-  std::vector<CalibrationRow> calibrations;  // likewise
   int failures_at_stop = 0;
   for (;;) {
     bool stopping = false;
@@ -217,12 +277,12 @@ void Writer::thread_main() {
         pending.push_back(std::move(queue_.front()));
         queue_.pop_front();
       }
-      for (auto& c : new_calibrations_) calibrations.push_back(std::move(c));
+      for (auto& c : new_calibrations_) calibrations_.push_back(std::move(c));
       new_calibrations_.clear();
     }
-    if (!pending.empty() || !calibrations.empty()) {
-      const Status s = commit(pending, calibrations);
-      if (!s.ok() && stopping && ++failures_at_stop >= 3) return;  // logged in counters; nothing more to try
+    if (!pending.empty() || !calibrations_.empty()) {
+      cycle(pending);
+      if (!pending.empty() && stopping && ++failures_at_stop >= 3) return;  // logged in counters; nothing more to try
     }
     if (stopping && pending.empty()) {
       std::lock_guard lock(mutex_);
@@ -231,29 +291,117 @@ void Writer::thread_main() {
   }
 }
 
-Status Writer::commit(std::deque<Batch>& pending, std::vector<CalibrationRow>& calibrations) {
+void Writer::writer_event(std::deque<Batch>& pending, std::string kind, std::string detail) {
+  if (pending.empty()) pending.emplace_back();
+  pending.back().events.push_back({std::nullopt, std::nullopt, std::nullopt, std::move(kind), std::move(detail), clock_()});
+  std::lock_guard lock(mutex_);
+  counters_.queued_bytes += 256;
+}
+
+// One commit cycle: the disk policy decides whether raw rows go in, then the
+// commit, then WAL and retention housekeeping.
+void Writer::cycle(std::deque<Batch>& pending) {
+  std::uint64_t wanted_cap = 0;
+  {
+    std::lock_guard lock(mutex_);
+    wanted_cap = wanted_max_file_bytes_;
+  }
+  if (wanted_cap != applied_max_file_bytes_) {
+    if (Status s = apply_max_file_bytes(wanted_cap); !s.ok()) {
+      std::lock_guard lock(mutex_);
+      counters_.last_error = s.message;
+    }
+  }
+  const double now = clock_();
+  const std::optional<std::uint64_t> free = free_bytes_ ? free_bytes_() : std::nullopt;
+  const auto stop_raw = [&](RawStop why, const std::string& detail) {
+    raw_stop_ = why;
+    raw_stop_since_unix_ = now;
+    writer_event(pending, "raw_writing_stopped", detail);
+    std::lock_guard lock(mutex_);
+    ++counters_.raw_stops;
+    counters_.raw_stopped = true;
+  };
+  const auto resume_raw = [&](const std::string& detail) {
+    raw_stop_ = RawStop::none;
+    writer_event(pending, "raw_writing_resumed", detail);
+    std::lock_guard lock(mutex_);
+    counters_.raw_stopped = false;
+  };
+  if (free && *free < settings_.disk_floor_bytes && raw_stop_ != RawStop::floor) {
+    stop_raw(RawStop::floor, "free_bytes=" + std::to_string(*free) + " floor_bytes=" + std::to_string(settings_.disk_floor_bytes));
+  } else if (raw_stop_ == RawStop::floor && free && *free >= settings_.disk_floor_bytes + settings_.disk_floor_bytes / 10) {
+    resume_raw("free_bytes=" + std::to_string(*free));
+  }
+  bool probe = raw_stop_ == RawStop::full && now - raw_stop_since_unix_ >= settings_.full_retry_interval_s;
+  Status s = commit(pending, raw_stop_ == RawStop::none || probe);
+  if (s.ok() && probe) {
+    resume_raw("a commit with raw blocks fits again");
+    s = commit(pending, true);  // the event itself
+  } else if (!s.ok() && is_full(s)) {
+    if (raw_stop_ == RawStop::none) {
+      stop_raw(RawStop::full, "database or disk is full: " + s.message);
+    } else if (probe) {
+      raw_stop_since_unix_ = now;  // still full: next probe later
+    }
+    // Raw rows are shed now (counted in commit); derived rows may still fit.
+    s = commit(pending, false);
+  }
+  if (s.ok()) {
+    manage_wal();
+    if (now - last_retention_unix_ >= settings_.retention_interval_s) {
+      last_retention_unix_ = now;
+      apply_retention();
+    }
+  }
+}
+
+Status Writer::commit(std::deque<Batch>& pending, bool with_raw) {
+  if (pending.empty() && calibrations_.empty()) return Status::success();
+  const auto t0 = std::chrono::steady_clock::now();  // latency figure only, no decision depends on it
   std::size_t bytes = 0;
+  attempt_raw_bytes_ = 0;
   Status s = db_->exec("BEGIN IMMEDIATE");
-  if (s.ok()) s = write_calibrations(calibrations);
+  if (s.ok()) s = write_calibrations(calibrations_);
   if (s.ok()) {
     for (const Batch& b : pending) {
-      if (s = write_batch(b); !s.ok()) break;
+      if (s = write_batch(b, with_raw); !s.ok()) break;
       bytes += b.raw_bytes() + b.derived_bytes();
     }
   }
   if (s.ok()) s = db_->exec("COMMIT");
+  const double ms = std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - t0).count();
   std::lock_guard lock(mutex_);
   if (!s.ok()) {
-    (void)db_->exec("ROLLBACK");
+    (void)db_->exec("ROLLBACK");  // the statement's error is the one to report
     ++counters_.commit_failures;
+    if (is_full(s)) ++counters_.disk_full_errors;
     counters_.last_error = s.message;
+    if (!with_raw) {
+      // Raw writing is stopped: what is held is shed, not retried (counted).
+      for (Batch& b : pending) {
+        counters_.raw_blocks_shed_disk += b.raw.size();
+        const std::size_t raw = b.raw_bytes();
+        b.raw.clear();
+        counters_.queued_bytes -= std::min(counters_.queued_bytes, raw);
+      }
+    }
     return s;
   }
   ++counters_.commits;
   counters_.last_commit_unix = clock_();
+  counters_.last_commit_ms = ms;
+  counters_.max_commit_ms = std::max(counters_.max_commit_ms, ms);
+  counters_.sum_commit_ms += ms;
+  counters_.raw_bytes_written += attempt_raw_bytes_;
   counters_.queued_bytes -= std::min(counters_.queued_bytes, bytes);
   for (const Batch& b : pending) {
-    counters_.raw_blocks_written += b.raw.size();
+    if (with_raw) {
+      counters_.raw_blocks_written += b.raw.size();
+      for (const auto& r : b.raw) counters_.raw_samples_written += r.codes.size();
+    } else {
+      counters_.raw_blocks_shed_disk += b.raw.size();
+    }
     counters_.events_written += b.events.size();
     for (const auto& c : b.channels) {
       counters_.series_points_written += c.output.series.size();
@@ -262,11 +410,117 @@ Status Writer::commit(std::deque<Batch>& pending, std::vector<CalibrationRow>& c
     }
   }
   pending.clear();
-  calibrations.clear();
+  calibrations_.clear();
   return s;
 }
 
-Status Writer::write_batch(const Batch& b) {
+void Writer::manage_wal() {
+  int frames = 0, done = 0;
+  // Passive: never waits for readers; with journal_size_limit the file shrinks
+  // back when the log restarts.
+  const int rc = sqlite3_wal_checkpoint_v2(db_->handle(), nullptr, SQLITE_CHECKPOINT_PASSIVE, &frames, &done);
+  std::lock_guard lock(mutex_);
+  if (rc != SQLITE_OK && rc != SQLITE_BUSY) {
+    counters_.last_error = std::string("wal checkpoint: ") + sqlite3_errmsg(db_->handle());
+    return;
+  }
+  counters_.wal_frames = frames;
+  ++counters_.wal_checkpoints;
+}
+
+void Writer::apply_retention() {
+  const double now = clock_();
+  struct Rule {
+    const char* sql;  // ?1 run, ?2 cutoff index, ?3 width (rollups)
+    double keep_s;
+    std::int64_t width_s;
+  };
+  std::vector<Rule> rules;
+  if (settings_.raw_keep_s > 0)
+    rules.push_back({"DELETE FROM raw_block WHERE run_id = ?1 AND first_index + samples <= ?2", settings_.raw_keep_s, 0});
+  if (settings_.series_keep_s > 0)
+    rules.push_back(
+        {"DELETE FROM series_point WHERE run_id = ?1 AND first_index + samples <= ?2", settings_.series_keep_s, 0});
+  for (const auto& [width_s, keep_s] : settings_.rollup_keep_s)
+    if (keep_s > 0)
+      rules.push_back({"DELETE FROM rollup WHERE run_id = ?1 AND width_s = ?3 AND first_index < ?2", keep_s, width_s});
+  if (rules.empty()) return;
+  std::uint64_t deleted = 0;
+  Status s = db_->exec("BEGIN IMMEDIATE");
+  Statement runs;
+  if (s.ok()) s = db_->prepare("SELECT run_id, utc_at_index0, sample_period_s FROM run", runs);
+  std::vector<std::tuple<std::int64_t, double, double>> run_list;
+  for (bool row = true; s.ok();) {
+    if (s = runs.step(&row); !s.ok() || !row) break;
+    run_list.emplace_back(runs.column_int(0), runs.column_double(1), runs.column_double(2));
+  }
+  for (const Rule& r : rules) {
+    if (!s.ok()) break;
+    Statement del;
+    if (s = db_->prepare(r.sql, del); !s.ok()) break;
+    for (const auto& [run_id, utc0, period] : run_list) {
+      if (!(period > 0)) continue;
+      const double cutoff = (now - r.keep_s - utc0) / period;
+      if (cutoff <= 0) continue;
+      del.bind(1, run_id).bind(2, std::int64_t(std::min(cutoff, 9.0e18)));
+      if (r.width_s) del.bind(3, r.width_s);
+      if (s = del.run(); !s.ok()) break;
+      deleted += std::uint64_t(sqlite3_changes(db_->handle()));
+    }
+  }
+  if (s.ok()) s = db_->exec("COMMIT");
+  std::lock_guard lock(mutex_);
+  if (!s.ok()) {
+    (void)db_->exec("ROLLBACK");
+    counters_.last_error = "retention: " + s.message;
+    return;
+  }
+  ++counters_.retention_passes;
+  counters_.rows_deleted_by_retention += deleted;
+}
+
+Status Writer::sample_period(std::int64_t run_id, double& out) {
+  if (auto it = period_by_run_.find(run_id); it != period_by_run_.end()) {
+    out = it->second;
+    return Status::success();
+  }
+  st_->period.bind(1, run_id);
+  bool row = false;
+  Status s = st_->period.step(&row);
+  out = row ? st_->period.column_double(0) : 0.0;
+  st_->period.reset();
+  if (!s.ok()) return s;
+  if (!row) return Status::error(SQLITE_CONSTRAINT, "rollup: run " + std::to_string(run_id) + " is not recorded");
+  period_by_run_[run_id] = out;
+  return Status::success();
+}
+
+Status Writer::write_rollups(const ChannelRows& c) {
+  if (c.output.series.empty()) return Status::success();
+  double period = 0.0;
+  if (Status s = sample_period(c.run_id, period); !s.ok()) return s;
+  for (const rollup::Bucket& k : rollup::fold_points(c.output.series, period)) {
+    st_->rollup.bind(1, c.run_id)
+        .bind(2, std::int64_t(c.channel))
+        .bind(3, k.width_s)
+        .bind(4, std::int64_t(k.bucket))
+        .bind(5, std::int64_t(k.first_index))
+        .bind(6, std::int64_t(k.last_point_index))
+        .bind(7, std::int64_t(k.points))
+        .bind(8, std::int64_t(k.samples))
+        .bind(9, k.min_v)
+        .bind(10, k.max_v)
+        .bind(11, k.sum_v)
+        .bind(12, k.last_v)
+        .bind(13, k.total)
+        .bind(14, k.total_u)
+        .bind(15, c.calibration_id);
+    if (Status s = st_->rollup.run(); !s.ok()) return s;
+  }
+  return Status::success();
+}
+
+Status Writer::write_batch(const Batch& b, bool with_raw) {
   Statements& st = *st_;
   if (b.run_start) {
     const auto& r = *b.run_start;
@@ -290,14 +544,20 @@ Status Writer::write_batch(const Batch& b) {
         .bind(4, r.board.sample_period_s)
         .bind(5, r.utc_at_index0);
     if (Status s2 = st.run.run(); !s2.ok()) return s2;
+    period_by_run_[r.run_id] = r.board.sample_period_s;
   }
+  std::vector<std::uint8_t> encoded;
   for (const auto& r : b.raw) {
+    if (!with_raw) break;
+    encoded.clear();
+    block_codec::encode(r.codes, r.channel_count, encoded);
+    attempt_raw_bytes_ += encoded.size();
     st.raw.bind(1, r.run_id)
         .bind(2, std::int64_t(r.first_index))
         .bind(3, std::int64_t(r.channel_count))
         .bind(4, std::int64_t(r.samples))
         .bind(5, std::int64_t(r.status))
-        .bind(6, std::span<const std::uint8_t>(r.data));
+        .bind(6, std::span<const std::uint8_t>(encoded));
     if (Status s = st.raw.run(); !s.ok()) return s;
   }
   for (const auto& c : b.channels) {
@@ -316,6 +576,7 @@ Status Writer::write_batch(const Batch& b) {
           .bind(11, c.calibration_id);
       if (Status s = st.series.run(); !s.ok()) return s;
     }
+    if (Status s = write_rollups(c); !s.ok()) return s;
     for (const auto& g : c.output.baselines) {
       st.baseline.bind(1, c.run_id)
           .bind(2, ch)

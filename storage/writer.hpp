@@ -2,8 +2,9 @@
 // Writer owns the database's only writing connection and the thread that uses
 // it. submit() never touches the disk: it queues a Batch and returns. The
 // thread commits everything queued in one transaction at most every
-// commit_interval, the running-total checkpoints in the same transaction as
-// the rows they cover, so after a crash the file holds a consistent prefix.
+// commit_interval, with the running-total checkpoints and the rollup buckets
+// in the same transaction as the rows they cover, so after a crash the file
+// holds a consistent prefix and a restart resumes exactly from the last commit.
 //
 // Overload policy (explicit and counted): above soft_limit_bytes of queued
 // data, new raw blocks are shed; above hard_limit_bytes, new series points are
@@ -11,6 +12,24 @@
 // are never shed: they are small, and the checkpoint carries the total, so a
 // shed series point never corrupts it. A failed commit is rolled back and
 // retried with the same rows on the next cycle.
+//
+// Disk policy: when free space (free_bytes) falls below disk_floor_bytes, or
+// a commit fails with SQLITE_FULL, raw blocks stop first: they are shed
+// (counted in raw_blocks_shed_disk) and a "raw_writing_stopped" event is
+// written; derived rows, events and checkpoints carry on while they fit. Raw
+// writing resumes, with a "raw_writing_resumed" event, once free space is
+// back above the floor (plus a tenth, so it does not flap) or, after a
+// SQLITE_FULL, once a probe commit with raw rows succeeds (every
+// full_retry_interval).
+//
+// WAL: SQLite's automatic checkpoint is replaced by a passive checkpoint after
+// each commit once the log holds wal_checkpoint_frames, and journal_size_limit
+// truncates the WAL file when it restarts, so the WAL stays bounded as long as
+// readers keep their read transactions short (every Reader query is one).
+//
+// Retention: every retention_interval, rows whose time is older than their
+// tier's keep time are deleted (raw blocks, series points, each rollup width);
+// a keep time of 0 keeps the tier for ever.
 #include <chrono>
 #include <condition_variable>
 #include <cstdint>
@@ -19,6 +38,7 @@
 #include <map>
 #include <memory>
 #include <mutex>
+#include <optional>
 #include <string>
 #include <thread>
 #include <utility>
@@ -34,6 +54,19 @@ struct WriterSettings {
   std::chrono::milliseconds commit_interval{250};
   std::size_t soft_limit_bytes = 64u << 20;
   std::size_t hard_limit_bytes = 256u << 20;
+  // WAL management.
+  int wal_checkpoint_frames = 1000;                        // about 4 MiB of 4 KiB pages
+  std::int64_t journal_size_limit_bytes = 16 << 20;        // WAL file size kept after a restart
+  // Retention per tier, seconds; 0 keeps for ever.
+  double raw_keep_s = 14 * 86400.0;
+  double series_keep_s = 0.0;
+  std::map<std::int64_t, double> rollup_keep_s;  // by width_s; missing: for ever
+  double retention_interval_s = 60.0;
+  // Free-disk floor.
+  std::uint64_t disk_floor_bytes = 64u << 20;
+  double full_retry_interval_s = 5.0;
+  // A cap on the file's size (PRAGMA max_page_count); 0: none.
+  std::uint64_t max_file_bytes = 0;
 };
 
 struct WriterCounters {
@@ -41,23 +74,41 @@ struct WriterCounters {
   std::uint64_t commits = 0;
   std::uint64_t commit_failures = 0;
   std::uint64_t raw_blocks_written = 0;
-  std::uint64_t raw_blocks_shed = 0;
+  std::uint64_t raw_blocks_shed = 0;       // queue over soft limit
+  std::uint64_t raw_blocks_shed_disk = 0;  // raw writing stopped (floor or full disk)
+  std::uint64_t raw_bytes_written = 0;     // encoded BLOB bytes
+  std::uint64_t raw_samples_written = 0;   // codes (all channels)
   std::uint64_t series_points_written = 0;
   std::uint64_t series_points_shed = 0;
   std::uint64_t segments_written = 0;
   std::uint64_t events_written = 0;
+  std::uint64_t disk_full_errors = 0;
+  std::uint64_t raw_stops = 0;
+  bool raw_stopped = false;
+  std::uint64_t wal_checkpoints = 0;
+  int wal_frames = 0;  // after the last checkpoint attempt
+  std::uint64_t retention_passes = 0;
+  std::uint64_t rows_deleted_by_retention = 0;
   std::size_t queued_bytes = 0;
   double last_commit_unix = 0.0;
+  // Commit latency (BEGIN to COMMIT on the writer thread), for status and benchmarks only.
+  double last_commit_ms = 0.0;
+  double max_commit_ms = 0.0;
+  double sum_commit_ms = 0.0;
   std::string last_error;
   std::map<int, std::uint64_t> committed_last_index;  // per channel, from checkpoints
 };
 
 class Writer {
  public:
-  using Clock = std::function<double()>;  // Unix seconds; injected for tests
+  using Clock = std::function<double()>;                          // Unix seconds; injected for tests
+  using FreeBytes = std::function<std::optional<std::uint64_t>()>;  // free space where the file lives
 
-  // Opens (creating if needed) and migrates the file; the thread is not started yet.
-  static Status open(const std::string& path, WriterSettings settings, Clock clock, std::unique_ptr<Writer>& out);
+  // Opens (creating if needed) and migrates the file; the thread is not started
+  // yet. A file of a newer schema version is refused before anything is written.
+  // free_bytes defaults to statvfs() of the file's directory.
+  static Status open(const std::string& path, WriterSettings settings, Clock clock, std::unique_ptr<Writer>& out,
+                     FreeBytes free_bytes = {});
   ~Writer();
 
   // Sets calibration.id to the stored version with exactly this definition, or
@@ -72,9 +123,11 @@ class Writer {
   // Commits everything queued, stops the thread. Idempotent.
   void stop();
   WriterCounters counters() const;
+  // Takes effect before the next commit (tests use it to lift a simulated full disk).
+  void set_max_file_bytes(std::uint64_t bytes);
 
  private:
-  Writer(std::unique_ptr<Database> db, WriterSettings settings, Clock clock);
+  Writer(std::unique_ptr<Database> db, WriterSettings settings, Clock clock, FreeBytes free_bytes);
   struct CalibrationRow {
     std::int64_t id;
     int channel;
@@ -86,15 +139,33 @@ class Writer {
   Status prepare_statements();
   Status load_calibrations();
   Status write_calibrations(const std::vector<CalibrationRow>& rows);
+  Status apply_max_file_bytes(std::uint64_t bytes);
   void thread_main();
-  Status commit(std::deque<Batch>& pending, std::vector<CalibrationRow>& calibrations);
-  Status write_batch(const Batch& b);
+  void cycle(std::deque<Batch>& pending);
+  Status commit(std::deque<Batch>& pending, bool with_raw);
+  Status write_batch(const Batch& b, bool with_raw);
+  Status write_rollups(const ChannelRows& c);
+  Status sample_period(std::int64_t run_id, double& out);
+  void writer_event(std::deque<Batch>& pending, std::string kind, std::string detail);
+  void manage_wal();
+  void apply_retention();
 
   std::unique_ptr<Database> db_;
   WriterSettings settings_;
   Clock clock_;
+  FreeBytes free_bytes_;
   struct Statements;
   std::unique_ptr<Statements> st_;
+
+  // Writer-thread state.
+  std::map<std::int64_t, double> period_by_run_;
+  enum class RawStop { none, floor, full };
+  RawStop raw_stop_ = RawStop::none;
+  double raw_stop_since_unix_ = 0.0;
+  double last_retention_unix_ = 0.0;
+  std::uint64_t applied_max_file_bytes_ = 0;
+  std::uint64_t attempt_raw_bytes_ = 0;  // encoded raw bytes in the open transaction
+  std::vector<CalibrationRow> calibrations_;  // taken from new_calibrations_, not yet committed
 
   mutable std::mutex mutex_;
   std::condition_variable wake_;
@@ -104,6 +175,7 @@ class Writer {
   std::vector<CalibrationRow> new_calibrations_;
   bool stopping_ = false;
   bool shed_notice_pending_ = false;
+  std::uint64_t wanted_max_file_bytes_ = 0;
   WriterCounters counters_;
   std::thread thread_;
 };

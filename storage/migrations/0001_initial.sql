@@ -1,0 +1,145 @@
+-- Migration 1: the first layout (schema version 1), as the walking skeleton shipped it.
+-- One SQLite file in WAL mode per daemon instance. Times are board sample
+-- indices; a run's clock model (utc_at_index0, sample_period_s) maps them to
+-- UTC. Voltages are integrator output volts; quantities are in the unit of the
+-- calibration the row names.
+
+-- A board as it identified itself.
+CREATE TABLE board (
+  board_id          INTEGER PRIMARY KEY,
+  serial            INTEGER NOT NULL UNIQUE,
+  firmware_version  INTEGER NOT NULL,
+  channel_count     INTEGER NOT NULL,
+  adc_bits          INTEGER NOT NULL,
+  full_scale_v      REAL    NOT NULL,
+  capabilities      INTEGER NOT NULL,
+  first_seen_utc    TEXT    NOT NULL
+);
+
+-- One unbroken board session: sample indices are monotonic within it.
+CREATE TABLE run (
+  run_id            INTEGER PRIMARY KEY,
+  board_id          INTEGER NOT NULL REFERENCES board(board_id),
+  started_utc       TEXT    NOT NULL,
+  sample_period_s   REAL    NOT NULL,
+  utc_at_index0     REAL    NOT NULL,   -- Unix seconds of sample index 0 (clock model)
+  ended_utc         TEXT,
+  end_reason        TEXT
+);
+
+-- Calibration versions. Immutable: a correction is a new row.
+CREATE TABLE calibration (
+  calibration_id    INTEGER PRIMARY KEY,
+  channel           INTEGER NOT NULL,
+  created_utc       TEXT    NOT NULL,
+  quantity          TEXT    NOT NULL,   -- charge, volt_seconds, ...
+  unit              TEXT    NOT NULL,   -- SI symbol
+  quantity_per_volt REAL    NOT NULL,   -- d(quantity)/d(Vout)
+  definition        TEXT    NOT NULL    -- JSON: adc, front end, sensor
+);
+
+-- Raw ADC codes, a block per frame as the board sent it (not a row per sample).
+-- encoding 1: packed little-endian 24-bit two's complement, interleaved by sample.
+CREATE TABLE raw_block (
+  run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  first_index       INTEGER NOT NULL,
+  channel_count     INTEGER NOT NULL,
+  samples           INTEGER NOT NULL,   -- per channel
+  status            INTEGER NOT NULL,   -- protocol status bits
+  encoding          INTEGER NOT NULL,
+  data              BLOB    NOT NULL,
+  PRIMARY KEY (run_id, first_index)
+) WITHOUT ROWID;
+
+-- Derived series: one point per channel per series interval (1 s by default).
+CREATE TABLE series_point (
+  run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  channel           INTEGER NOT NULL,
+  first_index       INTEGER NOT NULL,
+  samples           INTEGER NOT NULL,
+  min_v             REAL    NOT NULL,
+  max_v             REAL    NOT NULL,
+  mean_v            REAL    NOT NULL,
+  last_v            REAL    NOT NULL,
+  total             REAL    NOT NULL,   -- running total at the point's last sample
+  total_u           REAL    NOT NULL,   -- its standard uncertainty (k = 1)
+  calibration_id    INTEGER NOT NULL REFERENCES calibration(calibration_id),
+  PRIMARY KEY (run_id, channel, first_index)
+) WITHOUT ROWID;
+
+-- Drift fits on zero windows.
+CREATE TABLE baseline (
+  run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  channel           INTEGER NOT NULL,
+  ordinal           INTEGER NOT NULL,
+  first_index       INTEGER NOT NULL,
+  last_index        INTEGER NOT NULL,
+  samples           INTEGER NOT NULL,
+  intercept_v       REAL    NOT NULL,
+  slope_v_per_s     REAL    NOT NULL,
+  slope_se_v_per_s  REAL    NOT NULL,
+  residual_rms_v    REAL    NOT NULL,
+  PRIMARY KEY (run_id, channel, ordinal)
+) WITHOUT ROWID;
+
+-- Reset-to-reset segments and what each contributed.
+CREATE TABLE segment (
+  run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  channel           INTEGER NOT NULL,
+  ordinal           INTEGER NOT NULL,
+  first_index       INTEGER NOT NULL,
+  last_index        INTEGER NOT NULL,
+  start_v           REAL    NOT NULL,
+  end_v             REAL    NOT NULL,
+  drift_v           REAL    NOT NULL,
+  gap_before_v      REAL    NOT NULL,
+  gap_before_u_v    REAL    NOT NULL,
+  end_points_u_v    REAL    NOT NULL,
+  quantity          REAL    NOT NULL,
+  baseline_ordinal  INTEGER NOT NULL,   -- 0: no baseline
+  flags             INTEGER NOT NULL,   -- 1 clipped, 2 gap estimated, 4 no baseline
+  total_after       REAL    NOT NULL,
+  total_u_after     REAL    NOT NULL,
+  calibration_id    INTEGER NOT NULL REFERENCES calibration(calibration_id),
+  PRIMARY KEY (run_id, channel, ordinal)
+) WITHOUT ROWID;
+
+CREATE TABLE event (
+  event_id          INTEGER PRIMARY KEY,
+  run_id            INTEGER,            -- NULL for daemon events outside a run
+  channel           INTEGER,            -- NULL: all channels
+  sample_index      INTEGER,
+  kind              TEXT    NOT NULL,
+  detail            TEXT    NOT NULL,
+  host_utc          TEXT    NOT NULL
+);
+CREATE INDEX event_by_run ON event(run_id, sample_index);
+
+-- The running total per channel, committed in the same transaction as the
+-- data it covers. state is the chain's resume state as JSON.
+CREATE TABLE total_checkpoint (
+  channel           INTEGER PRIMARY KEY,
+  run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  last_index        INTEGER NOT NULL,
+  total             REAL    NOT NULL,
+  std_uncertainty   REAL    NOT NULL,
+  segments          INTEGER NOT NULL,
+  flags             INTEGER NOT NULL,
+  calibration_id    INTEGER NOT NULL REFERENCES calibration(calibration_id),
+  state             TEXT    NOT NULL,
+  committed_utc     TEXT    NOT NULL
+);
+
+-- Views for analysts (sqlite3 shell, pandas): UTC times and units.
+CREATE VIEW series_utc AS
+SELECT p.run_id, p.channel,
+       strftime('%Y-%m-%dT%H:%M:%fZ', r.utc_at_index0 + p.first_index * r.sample_period_s, 'unixepoch') AS utc,
+       p.mean_v, p.min_v, p.max_v, p.total, p.total_u, c.unit
+FROM series_point p JOIN run r USING (run_id) JOIN calibration c USING (calibration_id);
+
+CREATE VIEW segment_utc AS
+SELECT s.run_id, s.channel, s.ordinal,
+       strftime('%Y-%m-%dT%H:%M:%fZ', r.utc_at_index0 + s.first_index * r.sample_period_s, 'unixepoch') AS start_utc,
+       (s.last_index - s.first_index) * r.sample_period_s AS length_s,
+       s.quantity, s.gap_before_v, s.flags, s.total_after, c.unit
+FROM segment s JOIN run r USING (run_id) JOIN calibration c USING (calibration_id);
