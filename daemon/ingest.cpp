@@ -56,6 +56,10 @@ void Ingest::on_identity(const BoardIdentity& id, double receive_unix) {
   }
   identity_ = id;
   (void)receive_unix;
+  std::vector<WaitingBlock> waiting;
+  waiting.swap(waiting_);
+  waiting_samples_ = 0;
+  for (const auto& w : waiting) on_block(w.block, w.receive_unix);
 }
 
 chain::Calibration Ingest::calibration_for(int channel, const BoardIdentity& id) const {
@@ -147,7 +151,13 @@ void Ingest::start_run(const BoardIdentity& id, double receive_unix, std::option
 
 void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
   if (!identity_) {
-    counters_.samples_before_identity += b.samples_per_channel;
+    const std::size_t n = std::size_t(b.samples_per_channel) * b.channel_count;
+    if (waiting_samples_ + n > kMaxWaitingSamples) {
+      counters_.samples_before_identity += b.samples_per_channel;
+    } else {
+      waiting_samples_ += n;
+      waiting_.push_back({b, receive_unix});
+    }
     return;
   }
   if (b.channel_count != identity_->channel_count) {

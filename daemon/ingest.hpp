@@ -90,7 +90,15 @@ class Ingest {
   std::map<int, chain::ChainState> carried_;  // totals carried across board runs
   storage::Batch batch_;
   IngestCounters counters_;
-  double pending_utc0_ = 0.0;
+  // Blocks that arrive before the board's identity (a daemon started while the
+  // board streams) wait here, bounded, until the identity says how to read them.
+  struct WaitingBlock {
+    protocol::SampleBlock block;
+    double receive_unix;
+  };
+  std::vector<WaitingBlock> waiting_;
+  static constexpr std::size_t kMaxWaitingSamples = 1u << 20;
+  std::size_t waiting_samples_ = 0;
 };
 
 }  // namespace accrue::daemon

@@ -14,7 +14,7 @@ pids=()
 cleanup() { for p in "${pids[@]}"; do kill -9 "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
 trap cleanup EXIT
 RANDOM=42  # seeded: the kill moments repeat from run to run
-"$sim" --set duration_s=$(( kills * 40 + 200 )) --set beam.stop_s=$(( kills * 40 + 150 )) --set zero_window_s=10 \
+"$sim" --set duration_s=$(( kills * 60 + 300 )) --set beam.stop_s=$(( kills * 60 + 250 )) --set zero_window_s=10 \
   --set beam.start_s=15 --set beam.current_a=4e-10 --speed 20 --truth "$work/truth.json" --path-file "$work/pty" \
   >/dev/null 2>&1 &
 sim_pid=$!
@@ -27,16 +27,17 @@ start_daemon() {
   daemon_pid=$!
   pids+=($daemon_pid)
   for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
-  # Wait until this daemon has taken up the run, so every kill hits a live run.
+  # Wait until this daemon has taken up the run and committed that it did, so
+  # every kill hits a live run whose resumption is on disk.
+  local want=$1
   for _ in $(seq 400); do
-    "$client" --socket "$work/s.sock" --json status 2>/dev/null | grep -q '"run_id"' && return 0
+    [ "$(sqlite3 -readonly "$work/a.db" "SELECT COUNT(*) FROM event WHERE kind = '$2'" 2>/dev/null || echo 0)" -ge "$want" ] && return 0
     sleep 0.05
   done
   echo "daemon did not take up the run"; exit 1
 }
 q() { sqlite3 -readonly "$work/a.db" "$1"; }
-start_daemon
-sleep 1.5  # past the zero window, so the run and its baseline exist
+start_daemon 1 board_zero_relay_opened  # past the zero window: the run and its baseline exist
 last=0
 for k in $(seq "$kills"); do
   sleep "0.$(( 300 + RANDOM % 700 ))"
@@ -45,7 +46,7 @@ for k in $(seq "$kills"); do
   now=$(q "SELECT COALESCE(MAX(last_index), 0) FROM total_checkpoint")
   [ "$now" -ge "$last" ] || { echo "kill $k: checkpoint went back from $last to $now"; exit 1; }
   last=$now
-  start_daemon
+  start_daemon "$k" run_resumed
 done
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
 wait "$sim_pid"
