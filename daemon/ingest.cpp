@@ -222,7 +222,16 @@ void Ingest::end_run(const std::string& reason) {
   log_.info("run " + std::to_string(run.run_id) + " ended: " + reason);
   flush();
   run_.reset();
-  if (reason != "identity changed") identity_.reset();
+  if (reason != "identity changed" && reason != "calibration changed") identity_.reset();
+}
+
+void Ingest::reconfigure(const DaemonConfig& config) {
+  const bool calibrations_changed = config.channels != config_.channels;
+  config_.channels = config.channels;
+  config_.reset_schedule = config.reset_schedule;
+  config_.zero_windows = config.zero_windows;
+  event("config_reloaded", calibrations_changed ? "calibrations changed" : "calibrations unchanged");
+  if (calibrations_changed && run_) end_run("calibration changed");
 }
 
 void Ingest::flush() {

@@ -51,6 +51,11 @@ class Ingest {
   void flush();
   // The run cannot continue (daemon stopping keeps it open; this closes it).
   void end_run(const std::string& reason);
+  // Config reload (SIGHUP): takes the new channels, reset schedule and zero
+  // windows. Changed calibrations close the current run and the next block
+  // opens a new one with new calibration versions; the total carries on.
+  void reconfigure(const DaemonConfig& config);
+  const DaemonConfig& config() const { return config_; }
 
   nlohmann::json status() const;
   const protocol::Decoder& decoder() const { return decoder_; }

@@ -8,7 +8,7 @@ namespace accrue {
 Logger Logger::for_environment(LogLevel threshold) { return Logger(threshold, std::getenv("JOURNAL_STREAM") != nullptr); }
 
 void Logger::log(LogLevel level, std::string_view message) {
-  if (int(level) > int(threshold_)) return;
+  if (int(level) > int(threshold_.load())) return;
   static constexpr const char* names[] = {"", "", "", "error", "warning", "notice", "info", "debug"};
   std::lock_guard lock(mutex_);
   if (journald_) {

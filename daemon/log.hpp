@@ -2,6 +2,7 @@
 // Logger writes one line per message to stderr. Under systemd (JOURNAL_STREAM
 // set) each line carries the "<N>" priority prefix journald reads; elsewhere
 // plain text with the level name. Thread-safe; no global state: owners pass it.
+#include <atomic>
 #include <mutex>
 #include <string_view>
 
@@ -14,6 +15,8 @@ class Logger {
   Logger(LogLevel threshold, bool journald_prefixes) : threshold_(threshold), journald_(journald_prefixes) {}
   static Logger for_environment(LogLevel threshold);
   void log(LogLevel level, std::string_view message);
+  // Config reload may change the threshold while other code logs.
+  void set_threshold(LogLevel level) { threshold_.store(level); }
   void error(std::string_view m) { log(LogLevel::error, m); }
   void warning(std::string_view m) { log(LogLevel::warning, m); }
   void notice(std::string_view m) { log(LogLevel::notice, m); }
@@ -21,7 +24,7 @@ class Logger {
   void debug(std::string_view m) { log(LogLevel::debug, m); }
 
  private:
-  LogLevel threshold_;
+  std::atomic<LogLevel> threshold_;
   bool journald_;
   std::mutex mutex_;
 };

@@ -6,7 +6,9 @@
 #include <cstdio>
 #include <cstring>
 #include <iostream>
+#include <optional>
 #include <string>
+#include <thread>
 
 #include "daemon/api/methods.hpp"
 #include "daemon/api/server.hpp"
@@ -15,8 +17,10 @@
 #include "daemon/ingest.hpp"
 #include "daemon/options.hpp"
 #include "daemon/port_finder.hpp"
+#include "daemon/reload.hpp"
 #include "daemon/serial_link.hpp"
 #include "daemon/service.hpp"
+#include "daemon/stop_deadline.hpp"
 #include "protocol/encoder.hpp"
 #include "storage/reader.hpp"
 #include "storage/writer.hpp"
@@ -42,32 +46,68 @@ options:
   --record FILE        also write every byte read, with its receive time, to a capture FILE
   --replay FILE        feed a capture through the full daemon path into --database,
                        as fast as it goes, then exit (no device, no socket)
-  --check-config FILE  validate FILE, print every error, exit 0 if valid
+  --check-config FILE  validate FILE, print every error (key, value, reason),
+                       exit 0 if valid and 2 if not
   --list-ports         list serial ports with their USB ids and exit
   --help               this text
   --version            print the version
+  --test-hang-on-sigusr2
+                       for tests only: SIGUSR2 blocks the event loop, so the
+                       watchdog keep-alives stop
+
+signals: SIGTERM/SIGINT commit everything accepted and exit; SIGHUP reloads
+calibrations, reset schedule, zero windows and log level from --config, and
+keeps the running config if the new file has any error.
 )";
 
 double unix_now() {
   return std::chrono::duration<double>(std::chrono::system_clock::now().time_since_epoch()).count();
 }
 
-int print_errors(const std::vector<ConfigError>& errors) {
-  for (const auto& e : errors) std::fprintf(stderr, "accrued: config: %s: %s\n", e.key.c_str(), e.reason.c_str());
-  return errors.empty() ? 0 : 2;
+void print_errors(const std::vector<ConfigError>& errors) {
+  for (const auto& e : errors) std::fprintf(stderr, "accrued: config: %s\n", to_string(e).c_str());
+}
+
+// Command-line settings; kept so a SIGHUP reload re-applies them over the new file.
+struct Flags {
+  std::optional<std::string> config_file, device, database, socket, record, replay;
+  std::optional<int> baud;
+  std::optional<LogLevel> log_level;
+  bool hang_on_sigusr2 = false;  // test-only: SIGUSR2 blocks the loop, to exercise the watchdog
+
+  void apply(DaemonConfig& c) const {
+    if (device) c.device = *device;
+    if (baud) c.baud = *baud;
+    if (database) c.database = *database;
+    if (socket) c.socket_path = *socket;
+    if (log_level) c.log_level = *log_level;
+    if (record) c.record_path = *record;
+    if (replay) c.replay_path = *replay;
+  }
+};
+
+// Defaults, then the file, then the flags; every error of the file and of the whole.
+std::vector<ConfigError> build_config(const Flags& flags, DaemonConfig& out) {
+  DaemonConfig c;
+  std::vector<ConfigError> errors;
+  if (flags.config_file) errors = load_config(*flags.config_file, c);
+  flags.apply(c);
+  if (errors.empty()) errors = validate(c);
+  out = c;
+  return errors;
+}
+
+std::string join(const std::vector<std::string>& v) {
+  std::string s;
+  for (const auto& x : v) s += (s.empty() ? "" : ", ") + x;
+  return s;
 }
 
 }  // namespace
 
 int main(int argc, char** argv) {
-  DaemonConfig config;
+  Flags flags;
   std::vector<std::string> args(argv + 1, argv + argc);
-  // The config file first, so that flags override it wherever they stand.
-  for (std::size_t i = 0; i + 1 < args.size(); ++i) {
-    if (args[i] == "--config") {
-      if (int rc = print_errors(load_config(args[i + 1], config))) return rc;
-    }
-  }
   for (std::size_t i = 0; i < args.size(); ++i) {
     const std::string& a = args[i];
     auto value = [&](const char* name) -> const std::string* {
@@ -97,48 +137,66 @@ int main(int argc, char** argv) {
       DaemonConfig checked;
       auto errors = load_config(*f, checked);
       if (errors.empty()) errors = validate(checked);
-      if (int rc = print_errors(errors)) return rc;
+      print_errors(errors);
+      if (!errors.empty()) return 2;
       std::printf("%s: valid\n", f->c_str());
       return 0;
     } else if (a == "--config") {
-      ++i;
+      const std::string* v = value("--config");
+      if (!v) return 2;
+      flags.config_file = *v;
     } else if (a == "--device") {
       const std::string* v = value("--device");
       if (!v) return 2;
-      config.device = *v;
+      flags.device = *v;
     } else if (a == "--baud") {
       const std::string* v = value("--baud");
       if (!v) return 2;
-      config.baud = std::atoi(v->c_str());
+      char* end = nullptr;
+      const long b = std::strtol(v->c_str(), &end, 10);
+      if (*end != '\0' || b < 50 || b > 12'000'000) {
+        std::fprintf(stderr, "accrued: --baud: must be a whole number from 50 to 12000000, got %s\n", v->c_str());
+        return 2;
+      }
+      flags.baud = int(b);
     } else if (a == "--database") {
       const std::string* v = value("--database");
       if (!v) return 2;
-      config.database = *v;
+      flags.database = *v;
     } else if (a == "--socket") {
       const std::string* v = value("--socket");
       if (!v) return 2;
-      config.socket_path = *v;
+      flags.socket = *v;
     } else if (a == "--record") {
       const std::string* v = value("--record");
       if (!v) return 2;
-      config.record_path = *v;
+      flags.record = *v;
     } else if (a == "--replay") {
       const std::string* v = value("--replay");
       if (!v) return 2;
-      config.replay_path = *v;
+      flags.replay = *v;
     } else if (a == "--log-level") {
       const std::string* v = value("--log-level");
       if (!v) return 2;
-      if (!parse_log_level(*v, config.log_level)) {
+      LogLevel level{};
+      if (!parse_log_level(*v, level)) {
         std::fprintf(stderr, "accrued: --log-level: unknown level %s\n", v->c_str());
         return 2;
       }
+      flags.log_level = level;
+    } else if (a == "--test-hang-on-sigusr2") {
+      flags.hang_on_sigusr2 = true;
     } else {
       std::fprintf(stderr, "accrued: unknown option %s (see --help)\n", a.c_str());
       return 2;
     }
   }
-  if (int rc = print_errors(validate(config))) return rc;
+  DaemonConfig config;
+  if (auto errors = build_config(flags, config); !errors.empty()) {
+    print_errors(errors);
+    std::fprintf(stderr, "accrued: refusing to start: %zu config error(s)\n", errors.size());
+    return 2;
+  }
 
   Logger log = Logger::for_environment(config.log_level);
   ServiceNotifier notifier;
@@ -242,36 +300,108 @@ int main(int argc, char** argv) {
     flush_timer.async_wait([&](const boost::system::error_code& ec) {
       if (ec) return;
       ingest.flush();
-      notifier.watchdog();  // the loop turned: it is alive
       schedule_flush();
     });
   };
   schedule_flush();
 
+  // Watchdog keep-alives come from this loop, the one that reads the link and
+  // runs ingest: if it stops turning, the keep-alives stop and systemd restarts
+  // the service. Its own timer, so a long commit interval cannot starve it.
+  asio::steady_timer watchdog_timer(io);
+  std::function<void()> schedule_watchdog = [&] {
+    watchdog_timer.expires_after(notifier.watchdog_interval());
+    watchdog_timer.async_wait([&](const boost::system::error_code& ec) {
+      if (ec) return;
+      notifier.watchdog();
+      schedule_watchdog();
+    });
+  };
+
+  bool stopping = false;
   asio::signal_set signals(io, SIGINT, SIGTERM);
   signals.async_wait([&](const boost::system::error_code& ec, int signo) {
     if (ec) return;
+    stopping = true;
     log.notice(std::string("stopping on ") + (signo == SIGTERM ? "SIGTERM" : "SIGINT"));
     notifier.stopping();
     link.stop();
     server.stop();
     flush_timer.cancel();
+    watchdog_timer.cancel();
     io.stop();
   });
+
+  // SIGHUP: reload what can change in place; a bad file changes nothing.
+  asio::signal_set hangup(io, SIGHUP);
+  std::function<void()> wait_hangup = [&] {
+    hangup.async_wait([&](const boost::system::error_code& ec, int) {
+      if (ec || stopping) return;
+      DaemonConfig fresh;
+      std::vector<ConfigError> errors = build_config(flags, fresh);
+      ReloadPlan plan = plan_reload(config, fresh, std::move(errors));
+      if (!plan.errors.empty()) {
+        for (const auto& e : plan.errors) log.error("reload: config: " + to_string(e));
+        log.error("reload refused: " + std::to_string(plan.errors.size()) +
+                  " config error(s); still running with the previous config");
+        notifier.status("reload refused, previous config kept");
+      } else {
+        for (const auto& k : plan.need_restart)
+          log.warning("reload: " + k + " changed; it keeps its old value until the service restarts");
+        config = plan.next;
+        log.set_threshold(config.log_level);
+        ingest.reconfigure(config);
+        log.notice("reload: applied " + (plan.applied.empty() ? std::string("no changes") : join(plan.applied)));
+        notifier.status("config reloaded");
+      }
+      wait_hangup();
+    });
+  };
+  wait_hangup();
+
+  // Test-only: SIGUSR2 blocks this loop for good, as a deadlock would.
+  asio::signal_set hang_signal(io);
+  if (flags.hang_on_sigusr2) {
+    hang_signal.add(SIGUSR2);
+    hang_signal.async_wait([&](const boost::system::error_code& ec, int) {
+      if (ec) return;
+      log.warning("test hook: SIGUSR2, blocking the event loop");
+      for (;;) std::this_thread::sleep_for(std::chrono::seconds(1));
+    });
+  }
   std::signal(SIGPIPE, SIG_IGN);
 
-  notifier.ready("store open, link " + std::string(to_string(link.state())));
-  log.info("listening on " + config.socket_path + ", database " + config.database);
+  // READY once the store is open, the socket listens and the link has made its
+  // first attempt (posted after the link's coroutine, so it runs once that has
+  // opened the device or scheduled a retry).
+  asio::post(io, [&] {
+    notifier.ready("store open, link " + std::string(to_string(link.state())));
+    if (notifier.watchdog_interval().count() > 0) {
+      notifier.watchdog();
+      schedule_watchdog();
+    }
+    log.info("ready: listening on " + config.socket_path + ", database " + config.database + ", link " +
+             to_string(link.state()));
+  });
   io.run();
 
-  // Final flush: everything accepted is committed before exit.
+  // Final flush: everything accepted is committed before exit, within a bound.
+  StopDeadline deadline(config.stop_timeout_s, [&] {
+    log.error("stop took longer than stop_timeout_s (" + std::to_string(config.stop_timeout_s) +
+              " s); exiting without a final commit");
+    std::_Exit(1);
+  });
   ingest.flush();
   capture.close();
   if (capture.failed()) log.warning("the capture file could not be written completely: " + config.record_path);
   writer->stop();
+  deadline.disarm();
   const auto w = writer->counters();
+  const auto& n = ingest.counters();
   if (w.queued_bytes > 0 || !w.last_error.empty())
     log.warning("writer stopped with " + std::to_string(w.queued_bytes) + " bytes uncommitted; last error: " + w.last_error);
-  log.info("stopped");
-  return 0;
+  log.info("stopped: accepted " + std::to_string(n.blocks) + " blocks (" + std::to_string(n.samples) +
+           " samples); raw blocks written " + std::to_string(w.raw_blocks_written) + ", shed " +
+           std::to_string(w.raw_blocks_shed) + "; commits " + std::to_string(w.commits));
+  return w.queued_bytes == 0 ? 0 : 1;
 }
