@@ -5,6 +5,7 @@
 #include <vector>
 
 #include "tools/accrue/commands.hpp"
+#include "tools/accrue/plan_command.hpp"
 
 namespace {
 
@@ -23,6 +24,10 @@ commands:
                               the committed total beside a simulator's truth
   wait [--timeout S]          wait until the newest run has ended and all of it
                               is committed
+  plan --r1 R --c C [--r2 R] --input MIN:MAX [options]
+                              plan an integrator front end (response,
+                              drift, reset schedule, floors); needs no
+                              daemon; see accrue plan --help
 
 options:
   --socket PATH   the daemon's socket (default accrued.sock, or $ACCRUE_SOCKET)
@@ -70,6 +75,7 @@ int main(int argc, char** argv) {
   if (command == "window") return cmd_window(o, args);
   if (command == "compare") return cmd_compare(o, args);
   if (command == "wait") return cmd_wait(o, args);
+  if (command == "plan") return cmd_plan(o.json, args);
   std::fprintf(stderr, "accrue: unknown command %s (see --help)\n", command.c_str());
   return 2;
 }
