@@ -11,6 +11,7 @@ packages=(
   nlohmann-json3-dev catch2 libsystemd-dev
   libgsl-dev libbenchmark-dev
   python3 python3-numpy python3-scipy
+  dpkg-dev systemd
 )
 
 missing=()
