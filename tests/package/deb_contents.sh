@@ -16,6 +16,8 @@ for f in ./usr/sbin/accrued ./usr/bin/accrue ./usr/bin/accrue-sim \
          ./usr/share/doc/accrue/examples/99-accrue.rules.example; do
   grep -qx -- "$f" "$work/files" || { echo "missing from the package: $f"; cat "$work/files"; exit 1; }
 done
-dpkg-deb -I "$deb" | grep -q "Depends:.*libserialport0" || { dpkg-deb -I "$deb"; exit 1; }
+# (read whole first: grep -q closing the pipe early would fail the pipeline under pipefail)
+info=$(dpkg-deb -I "$deb")
+grep -q "Depends:.*libserialport0" <<<"$info" || { echo "$info"; exit 1; }
 dpkg-deb -I "$deb" postinst >/dev/null
 echo "$(basename "$deb"): $(wc -l <"$work/files") entries, all expected files present"
