@@ -16,6 +16,7 @@ grep -q "band_misses_signal" "$work/plan.txt" || { echo "text report lacks the b
 
 # The emitted config must be one accrued accepts.
 "$daemon" --check-config "$work/plan.json" || { echo "accrued rejected the emitted config:"; cat "$work/plan.json"; exit 1; }
+grep -q "\"threshold_fraction\"" "$work/plan.json" || { echo "emitted config lacks the reset schedule"; exit 1; }
 
 /usr/bin/python3 - "$work/plan.out" "$work/bode.svg" <<'PY'
 import json, math, sys

@@ -159,6 +159,9 @@ TEST_CASE("plan: the emitted config carries the calibration", "[plan]") {
   CHECK(text.find("\"r2_ohm\": 1000000000.0") != std::string::npos);
   CHECK(text.find("\"settle_s\": 0.002") != std::string::npos);
   CHECK(text.find("threshold 7.84") != std::string::npos);
+  // 7.8405 V of a 10 V full scale; the interval is the time to it at the maximum input.
+  CHECK(text.find("\"threshold_fraction\": 0.78405") != std::string::npos);
+  CHECK(text.find("\"interval_s\": 15.64") != std::string::npos);
 }
 
 TEST_CASE("plan: SI text picks the prefix", "[plan]") {

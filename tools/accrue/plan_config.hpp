@@ -1,9 +1,9 @@
 #pragma once
 // Writes the calibration and schedule part of an accrued config from a plan,
-// as JSON with comments (the daemon's config format, see README.md). Only keys
-// that accrued knows are written; what the config cannot carry yet (the
-// board's reset threshold or interval) goes into comments, so that
-// `accrued --check-config` accepts the file. Pure: returns the text.
+// as JSON with comments (the daemon's config format, see README.md): device,
+// settle_s, end_window, the channel's calibration and reset_schedule
+// (threshold_fraction of full scale, interval_s). Only keys that accrued knows
+// are written, so that `accrued --check-config` accepts the file. Pure.
 #include <string>
 
 #include "tools/accrue/plan.hpp"
