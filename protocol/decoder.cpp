@@ -114,6 +114,7 @@ void Decoder::feed(std::span<const std::uint8_t> bytes, std::vector<Message>& ou
     }
     pos_ += total;
     ++counters_.frames_ok;
+    counters_.accepted_bytes += total;
     out.push_back(std::move(*message));
   }
   // Keep the unconsumed tail only (at most one frame's worth).

@@ -15,6 +15,7 @@ namespace accrue::protocol {
 struct DecoderCounters {
   std::uint64_t bytes_in = 0;
   std::uint64_t frames_ok = 0;
+  std::uint64_t accepted_bytes = 0;   // bytes of frames that decoded; bytes_in = accepted + discarded + buffered
   std::uint64_t discarded_bytes = 0;  // bytes that were not part of a valid frame
   std::uint64_t bad_crc = 0;
   std::uint64_t oversize = 0;         // header declared a payload over kMaxPayload
