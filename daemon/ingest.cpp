@@ -7,7 +7,7 @@ namespace accrue::daemon {
 using protocol::BoardIdentity;
 
 Ingest::Ingest(const DaemonConfig& config, storage::Writer& writer, Logger& log, Clock clock)
-    : config_(config), writer_(writer), log_(log), clock_(std::move(clock)) {
+    : config_(config), writer_(writer), log_(log), clock_(std::move(clock)), lines_(config.protocol == ProtocolVariant::text_lines) {
   std::int64_t id = 1;
   if (storage::Status s = writer_.next_run_id(id); s.ok()) next_run_id_ = id;
 }
@@ -31,13 +31,15 @@ void Ingest::event(std::string kind, std::string detail, std::optional<std::uint
 
 void Ingest::on_bytes(std::span<const std::uint8_t> bytes, double receive_unix) {
   messages_.clear();
-  decoder_.feed(bytes, messages_);
+  if (lines_) line_decoder_.feed(bytes, messages_);
+  else decoder_.feed(bytes, messages_);
   for (const auto& m : messages_) handle(m, receive_unix);
 }
 
 void Ingest::on_link_lost(const std::string& why) {
   // A pulled cable does not end the run: the board may still be integrating.
   decoder_.reset();
+  line_decoder_.reset();
   event("link_lost", why);
 }
 
@@ -45,7 +47,8 @@ void Ingest::handle(const protocol::Message& m, double receive_unix) {
   if (auto* id = std::get_if<BoardIdentity>(&m)) return on_identity(*id, receive_unix);
   if (auto* b = std::get_if<protocol::SampleBlock>(&m)) return on_block(*b, receive_unix);
   if (auto* e = std::get_if<protocol::BoardEvent>(&m)) return on_event(*e, receive_unix);
-  // Acks and echoed commands are not part of the data path.
+  if (auto* a = std::get_if<protocol::CommandAck>(&m); a && on_ack_) on_ack_(*a, receive_unix);
+  // Echoed commands are not part of the data path.
 }
 
 void Ingest::on_identity(const BoardIdentity& id, double receive_unix) {
@@ -164,15 +167,23 @@ void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
     ++counters_.wrong_shape_blocks;
     return;
   }
-  if (run_ && run_->any_samples && b.first_index < run_->next_index) {
+  if (!run_) sequence_.restart();
+  const protocol::SequenceResult seq = sequence_.on_block(b.first_index, b.samples_per_channel);
+  if (run_ && seq.outcome == protocol::SequenceOutcome::reboot) {
     log_.notice("sample index went back from " + std::to_string(run_->next_index) + " to " +
                 std::to_string(b.first_index) + ": board rebooted");
+    const BoardIdentity same = *identity_;
     end_run("board rebooted");
+    identity_ = same;  // same board, new session: its identity still holds
   }
-  if (!run_) start_run(*identity_, receive_unix, b.first_index);
+  if (!run_) {
+    start_run(*identity_, receive_unix, b.first_index);
+    clock_model_.emplace(identity_->sample_period_s);
+  }
   Run& run = *run_;
-  if (run.any_samples && b.first_index > run.next_index) {
-    const std::uint64_t missing = b.first_index - run.next_index;
+  if (b.samples_per_channel > 0) clock_model_->add(b.first_index + b.samples_per_channel - 1, receive_unix);
+  if (seq.outcome == protocol::SequenceOutcome::gap) {
+    const std::uint64_t missing = seq.missing_samples;
     ++counters_.gaps;
     counters_.missing_samples += missing;
     event("sample_gap", "missing_samples=" + std::to_string(missing), run.next_index);
@@ -254,7 +265,7 @@ nlohmann::json Ingest::status() const {
   json j = {
       {"decoder",
        {{"bytes_in", d.bytes_in}, {"frames_ok", d.frames_ok}, {"discarded_bytes", d.discarded_bytes},
-        {"bad_crc", d.bad_crc}, {"oversize", d.oversize}, {"bad_version", d.bad_version}, {"malformed", d.malformed}}},
+        {"bad_crc", d.bad_crc}, {"oversize", d.oversize}, {"accepted_bytes", d.accepted_bytes}, {"bad_version", d.bad_version}, {"malformed", d.malformed}}},
       {"ingest",
        {{"blocks", counters_.blocks}, {"samples", counters_.samples},
         {"samples_before_identity", counters_.samples_before_identity}, {"gaps", counters_.gaps},
@@ -262,6 +273,20 @@ nlohmann::json Ingest::status() const {
         {"runs_resumed", counters_.runs_resumed}, {"board_events", counters_.board_events},
         {"wrong_shape_blocks", counters_.wrong_shape_blocks}}},
   };
+  if (lines_) {
+    const auto& l = line_decoder_.counters();
+    j["line_decoder"] = {{"bytes_in", l.bytes_in},           {"lines_ok", l.lines_ok},
+                         {"comments", l.comments},           {"bad_lines", l.bad_lines},
+                         {"bad_checksum", l.bad_checksum},   {"oversize_lines", l.oversize_lines},
+                         {"accepted_bytes", l.accepted_bytes}, {"discarded_bytes", l.discarded_bytes}};
+  }
+  j["wire_format"] = lines_ ? "lines" : "frames";
+  j["ingest"]["reboots"] = sequence_.counters().reboots;
+  if (clock_model_) {
+    const ClockFit f = clock_model_->fit();
+    j["clock"] = {{"valid", f.valid}, {"skew_ppm", f.skew_ppm}, {"buckets", f.buckets}, {"pairs", f.pairs}};
+    if (run_) j["clock"]["utc_of_next_index"] = clock_model_->utc_of(run_->next_index);
+  }
   if (identity_) {
     j["board"] = {{"serial", identity_->board_serial},         {"firmware_version", identity_->firmware_version},
                   {"channels", identity_->channel_count},      {"adc_bits", identity_->adc_bits},

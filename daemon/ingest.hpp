@@ -16,9 +16,12 @@
 #include <nlohmann/json.hpp>
 
 #include "daemon/chain/channel_chain.hpp"
+#include "daemon/clock_model.hpp"
 #include "daemon/log.hpp"
 #include "daemon/options.hpp"
 #include "protocol/decoder.hpp"
+#include "protocol/line_codec.hpp"
+#include "protocol/sequence_tracker.hpp"
 #include "storage/batch.hpp"
 #include "storage/reader.hpp"
 #include "storage/writer.hpp"
@@ -57,6 +60,11 @@ class Ingest {
   void reconfigure(const DaemonConfig& config);
   const DaemonConfig& config() const { return config_; }
 
+  // Board acknowledgements go here (the daemon's BoardCommands); they are not data.
+  void set_ack_handler(std::function<void(const protocol::CommandAck&, double receive_unix)> h) {
+    on_ack_ = std::move(h);
+  }
+
   nlohmann::json status() const;
   const protocol::Decoder& decoder() const { return decoder_; }
   const IngestCounters& counters() const { return counters_; }
@@ -86,6 +94,11 @@ class Ingest {
   Logger& log_;
   Clock clock_;
   protocol::Decoder decoder_;
+  protocol::LineDecoder line_decoder_;  // used instead of decoder_ when wire_format is "lines"
+  bool lines_ = false;
+  protocol::SequenceTracker sequence_;
+  std::optional<ClockModel> clock_model_;  // per run: sample index -> UTC
+  std::function<void(const protocol::CommandAck&, double)> on_ack_;
   std::vector<protocol::Message> messages_;
   std::optional<protocol::BoardIdentity> identity_;
   std::optional<Run> run_;

@@ -13,6 +13,7 @@
 #include "daemon/api/methods.hpp"
 #include "daemon/api/server.hpp"
 #include "daemon/asio.hpp"
+#include "daemon/board_commands.hpp"
 #include "daemon/capture.hpp"
 #include "daemon/ingest.hpp"
 #include "daemon/options.hpp"
@@ -22,6 +23,7 @@
 #include "daemon/service.hpp"
 #include "daemon/stop_deadline.hpp"
 #include "protocol/encoder.hpp"
+#include "protocol/line_codec.hpp"
 #include "storage/reader.hpp"
 #include "storage/writer.hpp"
 
@@ -253,19 +255,35 @@ int main(int argc, char** argv) {
   }
 
   asio::io_context io(1);
-  std::uint16_t next_request_id = 1;
   SerialLink* link_ptr = nullptr;
+  const bool lines = config.protocol == ProtocolVariant::text_lines;
+  BoardCommands commands(BoardCommandSettings{}, [&](const protocol::BoardCommand& c) {
+    if (lines) {
+      const std::string text = protocol::encode_line(c, true);
+      link_ptr->send(std::vector<std::uint8_t>(text.begin(), text.end()));
+    } else {
+      link_ptr->send(protocol::encode(c));
+    }
+  });
+  ingest.set_ack_handler([&](const protocol::CommandAck& a, double t) { commands.on_ack(a, t); });
+  LinkSettings link_settings{config.device, unsigned(config.baud), config.reconnect_max_s,
+                             to_string(config.parity), to_string(config.flow_control)};
   SerialLink link(
-      io, LinkSettings{config.device, unsigned(config.baud), config.reconnect_max_s}, log, unix_now,
+      io, link_settings, log, unix_now,
       [&](std::span<const std::uint8_t> bytes, double t) {
         capture.append(bytes, t);  // buffered; a failed capture stops itself and never blocks ingest's data
         ingest.on_bytes(bytes, t);
       },
       [&] {
         // Ask the board who it is, so a daemon started mid-stream learns the identity.
-        link_ptr->send(protocol::encode(protocol::BoardCommand{next_request_id++, protocol::CommandOp::identify, 0}));
+        commands.submit(protocol::CommandOp::identify, 0, unix_now(), [&](const CommandResult& r) {
+          if (r.outcome != CommandOutcome::acked) log.notice("board did not acknowledge identify");
+        });
       },
-      [&](const std::string& why) { ingest.on_link_lost(why); });
+      [&](const std::string& why) {
+        commands.abandon_all();
+        ingest.on_link_lost(why);
+      });
   link_ptr = &link;
 
   api::Methods methods(config.database, [&] {
@@ -273,8 +291,11 @@ int main(int argc, char** argv) {
     const auto w = writer->counters();
     nlohmann::json committed = nlohmann::json::object();
     for (const auto& [ch, index] : w.committed_last_index) committed[std::to_string(ch)] = index;
-    j["link"] = {{"state", to_string(link.state())}, {"device", link.device_path()}, {"last_error", link.last_error()},
-                 {"opens", link.opens()}, {"drops", link.drops()}, {"unsent_commands", link.unsent_commands()}};
+    j["link"] = link.status();
+    const auto& cc = commands.counters();
+    j["commands"] = {{"pending", commands.pending()}, {"submitted", cc.submitted}, {"sends", cc.sends},
+                     {"retries", cc.retries}, {"acked", cc.acked}, {"timed_out", cc.timed_out},
+                     {"refused", cc.refused}, {"unknown_acks", cc.unknown_acks}, {"abandoned", cc.abandoned}};
     j["writer"] = {{"commits", w.commits}, {"commit_failures", w.commit_failures},
                    {"raw_blocks_written", w.raw_blocks_written}, {"raw_blocks_shed", w.raw_blocks_shed},
                    {"series_points_written", w.series_points_written}, {"series_points_shed", w.series_points_shed},
@@ -305,6 +326,18 @@ int main(int argc, char** argv) {
   };
   schedule_flush();
 
+  // Retries and timeouts of board commands, on the same loop.
+  asio::steady_timer command_timer(io);
+  std::function<void()> schedule_commands = [&] {
+    command_timer.expires_after(std::chrono::milliseconds(100));
+    command_timer.async_wait([&](const boost::system::error_code& ec) {
+      if (ec) return;
+      commands.tick(unix_now());
+      schedule_commands();
+    });
+  };
+  schedule_commands();
+
   // Watchdog keep-alives come from this loop, the one that reads the link and
   // runs ingest: if it stops turning, the keep-alives stop and systemd restarts
   // the service. Its own timer, so a long commit interval cannot starve it.
@@ -329,6 +362,7 @@ int main(int argc, char** argv) {
     server.stop();
     flush_timer.cancel();
     watchdog_timer.cancel();
+    command_timer.cancel();
     io.stop();
   });
 

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <array>
+#include <cstdio>
 
 #include "daemon/port_finder.hpp"
 
@@ -29,11 +30,43 @@ SerialLink::SerialLink(asio::io_context& io, LinkSettings settings, Logger& log,
       port_(io),
       backoff_timer_(io) {}
 
+void SerialLink::set_state(LinkState s) {
+  if (s != state_) state_since_unix_ = clock_();
+  state_ = s;
+}
+
+nlohmann::json SerialLink::status() const {
+  nlohmann::json j = {{"state", to_string(state_)},
+                      {"state_since_unix", state_since_unix_},
+                      {"device", device_path_},
+                      {"selector", settings_.selector},
+                      {"baud", settings_.baud},
+                      {"parity", settings_.parity},
+                      {"flow_control", settings_.flow_control},
+                      {"last_error", last_error_},
+                      {"opens", opens_},
+                      {"failed_opens", failed_opens_},
+                      {"drops", drops_},
+                      {"unsent_commands", unsent_},
+                      {"backoff_s", state_ == LinkState::retrying ? backoff_s_ : 0.0}};
+  for (const auto& p : list_ports()) {
+    if (p.path != device_path_) continue;
+    if (p.usb_vid >= 0) {
+      char id[16];
+      std::snprintf(id, sizeof id, "%04x:%04x", unsigned(p.usb_vid), unsigned(p.usb_pid));
+      j["usb_id"] = id;
+    }
+    if (!p.usb_serial.empty()) j["usb_serial"] = p.usb_serial;
+    if (!p.description.empty()) j["description"] = p.description;
+  }
+  return j;
+}
+
 void SerialLink::start() { asio::co_spawn(io_, run(), asio::detached); }
 
 void SerialLink::stop() {
   stopping_ = true;
-  state_ = LinkState::stopped;
+  set_state(LinkState::stopped);
   boost::system::error_code ec;
   backoff_timer_.cancel();
   port_.close(ec);
@@ -56,9 +89,15 @@ bool SerialLink::open_port() {
   using base = asio::serial_port_base;
   port_.set_option(base::baud_rate(settings_.baud), ec);
   if (!ec) port_.set_option(base::character_size(8), ec);
-  if (!ec) port_.set_option(base::parity(base::parity::none), ec);
+  const auto parity = settings_.parity == "odd"    ? base::parity::odd
+                      : settings_.parity == "even" ? base::parity::even
+                                                   : base::parity::none;
+  const auto flow = settings_.flow_control == "software"   ? base::flow_control::software
+                    : settings_.flow_control == "hardware" ? base::flow_control::hardware
+                                                           : base::flow_control::none;
+  if (!ec) port_.set_option(base::parity(parity), ec);
   if (!ec) port_.set_option(base::stop_bits(base::stop_bits::one), ec);
-  if (!ec) port_.set_option(base::flow_control(base::flow_control::none), ec);
+  if (!ec) port_.set_option(base::flow_control(flow), ec);
   if (ec) {
     last_error_ = "cannot configure " + device_path_ + ": " + ec.message();
     port_.close(ec);
@@ -71,10 +110,10 @@ asio::awaitable<void> SerialLink::run() {
   double backoff_s = 0.1;
   std::array<std::uint8_t, 65536> buffer;
   while (!stopping_) {
-    state_ = LinkState::connecting;
+    set_state(LinkState::connecting);
     if (open_port()) {
       ++opens_;
-      state_ = LinkState::up;
+      set_state(LinkState::up);
       backoff_s = 0.1;
       log_.info("link up on " + device_path_);
       on_up_();
@@ -96,17 +135,19 @@ asio::awaitable<void> SerialLink::run() {
       log_.warning("link down on " + device_path_ + ": " + last_error_);
       on_down_(last_error_);
     } else if (!stopping_) {
+      ++failed_opens_;
       log_.debug("link not open: " + last_error_);
     }
     if (stopping_) break;
-    state_ = LinkState::retrying;
+    backoff_s_ = backoff_s;
+    set_state(LinkState::retrying);
     backoff_timer_.expires_after(std::chrono::duration_cast<std::chrono::steady_clock::duration>(
         std::chrono::duration<double>(backoff_s)));
     boost::system::error_code ec;
     co_await backoff_timer_.async_wait(asio::redirect_error(asio::use_awaitable, ec));
     backoff_s = std::min(backoff_s * 2.0, settings_.reconnect_max_s);
   }
-  state_ = LinkState::stopped;
+  set_state(LinkState::stopped);
 }
 
 void SerialLink::send(std::vector<std::uint8_t> bytes) {

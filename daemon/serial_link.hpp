@@ -13,6 +13,8 @@
 #include <string>
 #include <vector>
 
+#include <nlohmann/json.hpp>
+
 #include "daemon/asio.hpp"
 #include "daemon/log.hpp"
 
@@ -25,6 +27,8 @@ struct LinkSettings {
   std::string selector;
   unsigned baud = 921600;
   double reconnect_max_s = 30.0;
+  std::string parity = "none";        // none, odd, even (checked by the config loader)
+  std::string flow_control = "none";  // none, software, hardware
 };
 
 class SerialLink {
@@ -47,11 +51,17 @@ class SerialLink {
   std::uint64_t opens() const { return opens_; }
   std::uint64_t drops() const { return drops_; }
   std::uint64_t unsent_commands() const { return unsent_; }
+  // When the state last changed (injected clock), and the wait before the next open attempt.
+  double state_since_unix() const { return state_since_unix_; }
+  double backoff_s() const { return backoff_s_; }
+  // The link as a JSON-ready record for status: state, device, USB metadata, counters.
+  nlohmann::json status() const;
 
  private:
   asio::awaitable<void> run();
   asio::awaitable<void> write_queued();
   bool open_port();
+  void set_state(LinkState s);
 
   asio::io_context& io_;
   LinkSettings settings_;
@@ -68,7 +78,9 @@ class SerialLink {
   std::deque<std::vector<std::uint8_t>> outbox_;
   std::string device_path_;
   std::string last_error_;
-  std::uint64_t opens_ = 0, drops_ = 0, unsent_ = 0;
+  std::uint64_t opens_ = 0, drops_ = 0, unsent_ = 0, failed_opens_ = 0;
+  double state_since_unix_ = 0.0;
+  double backoff_s_ = 0.0;
 };
 
 }  // namespace accrue::daemon
