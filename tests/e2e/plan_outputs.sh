@@ -76,4 +76,7 @@ set +e
 "$client" plan --c 1n --input 1n >/dev/null 2>&1; rc=$?
 set -e
 [ "$rc" -eq 2 ] || { echo "missing --r1 exited $rc"; exit 1; }
+# Units on the values, Ω for resistors.
+"$client" --json plan --r1 100kΩ --c 4n7F --r2 1M2ohm --input 1n >"$work/units.json"
+/usr/bin/python3 -c 'import json,sys; p=json.load(open(sys.argv[1])); assert (p["r1_ohm"], p["c_farad"], p["r2_ohm"]) == (1e5, 4.7e-9, 1.2e6), p' "$work/units.json"
 echo ok

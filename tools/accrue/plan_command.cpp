@@ -73,7 +73,8 @@ struct Parser {
     return args[++i];
   }
   bool eng(const std::string& name, const std::string& text, const char* unit, double& out) {
-    const EngValue v = parse_engineering(text, unit);
+    EngValue v = parse_engineering(text, unit);
+    if (!v.ok && std::string_view(unit) == "ohm") v = parse_engineering(text, "\xCE\xA9");  // Ω
     if (!v.ok) {
       fail(name + ": " + v.error);
       return false;
