@@ -78,5 +78,5 @@ set -e
 [ "$rc" -eq 2 ] || { echo "missing --r1 exited $rc"; exit 1; }
 # Units on the values, Ω for resistors.
 "$client" --json plan --r1 100kΩ --c 4n7F --r2 1M2ohm --input 1n >"$work/units.json"
-/usr/bin/python3 -c 'import json,sys; p=json.load(open(sys.argv[1])); assert (p["r1_ohm"], p["c_farad"], p["r2_ohm"]) == (1e5, 4.7e-9, 1.2e6), p' "$work/units.json"
+/usr/bin/python3 -c 'import json,sys; p=json.load(open(sys.argv[1])); import math; assert all(math.isclose(a, b, rel_tol=1e-12) for a, b in zip((p["r1_ohm"], p["c_farad"], p["r2_ohm"]), (1e5, 4.7e-9, 1.2e6))), p' "$work/units.json"
 echo ok
