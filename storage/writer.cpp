@@ -70,6 +70,14 @@ Status Writer::open(const std::string& path, WriterSettings settings, Clock cloc
   std::unique_ptr<Writer> w(new Writer(std::move(db), settings, std::move(clock), std::move(free_bytes)));
   if (Status s = w->prepare_statements(); !s.ok()) return s;
   if (Status s = w->load_calibrations(); !s.ok()) return s;
+  // Learn the log's length after each commit (this hook replaces SQLite's automatic checkpoint).
+  sqlite3_wal_hook(
+      w->db_->handle(),
+      [](void* self, sqlite3*, const char*, int frames) {
+        static_cast<Writer*>(self)->wal_frames_ = frames;
+        return SQLITE_OK;
+      },
+      w.get());
   if (Status s = w->apply_max_file_bytes(settings.max_file_bytes); !s.ok()) return s;
   out = std::move(w);
   return Status::success();
@@ -415,6 +423,7 @@ Status Writer::commit(std::deque<Batch>& pending, bool with_raw) {
 }
 
 void Writer::manage_wal() {
+  if (wal_frames_ < settings_.wal_checkpoint_frames) return;
   int frames = 0, done = 0;
   // Passive: never waits for readers; with journal_size_limit the file shrinks
   // back when the log restarts.
