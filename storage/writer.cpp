@@ -153,7 +153,11 @@ static std::string calibration_definition(const chain::Calibration& cal) {
                {"gain", cal.adc.gain}, {"bipolar", cal.adc.bipolar}}},
       {"front_end", {{"r1_ohm", cal.front_end.r1_ohm}, {"c_farad", cal.front_end.c_farad},
                      {"r2_ohm", cal.front_end.r2_ohm}, {"inverting", cal.front_end.inverting}}},
-      {"sensor", std::string(chain::to_string(cal.sensor))}};
+      {"sensor", std::string(chain::to_string(cal.sensor))},
+      {"sensor_model", {{"turns", cal.sensor_model.turns}, {"area_m2", cal.sensor_model.area_m2},
+                        {"mutual_inductance_h", cal.sensor_model.mutual_inductance_h},
+                        {"sensitivity_v_per_m_per_s", cal.sensor_model.sensitivity_v_per_m_per_s},
+                        {"charge_sensitivity", cal.sensor_model.charge_sensitivity}}}};
   return def.dump();
 }
 
