@@ -1,5 +1,7 @@
 #include "daemon/ingest.hpp"
 
+#include <cmath>
+
 #include "protocol/byte_order.hpp"
 
 namespace accrue::daemon {
@@ -82,6 +84,7 @@ chain::Calibration Ingest::calibration_for(int channel, const BoardIdentity& id)
     if (c.gain) cal.adc.gain = *c.gain;
     if (c.zero_code) cal.adc.zero_code = *c.zero_code;
     cal.front_end.inverting = c.inverting;
+    cal.sensor_model = c.sensor_model;
   }
   return cal;
 }
@@ -122,9 +125,18 @@ void Ingest::start_run(const BoardIdentity& id, double receive_unix, std::option
   settings.series_interval_s = config_.series_interval_s;
   for (int c = 0; c < id.channel_count; ++c) {
     chain::Calibration cal = calibration_for(c, id);
+    if (const std::string why = cal.check(); !why.empty())
+      event("calibration_invalid", why, first_index, c);
+    chain::ChainSettings settings_c = settings;
+    if (auto it = config_.channels.find(c); it != config_.channels.end()) {
+      const ChannelConfig& cc = it->second;
+      settings_c.leak_correction = cc.leak_correction;
+      settings_c.baseline_model = cc.baseline_model;
+      settings_c.baseline_robust = cc.baseline_robust;
+    }
     if (storage::Status s = writer_.ensure_calibration(c, cal); !s.ok())
       log_.error("channel " + std::to_string(c) + ": cannot record calibration: " + s.message);
-    auto chain = std::make_unique<chain::ChannelChain>(cal, settings);
+    auto chain = std::make_unique<chain::ChannelChain>(cal, settings_c);
     if (auto it = carried_.find(c); it != carried_.end()) {
       chain::ChainState state = it->second;
       if (!resumed) {
@@ -205,6 +217,10 @@ void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
   for (std::size_t c = 0; c < run.chains.size(); ++c) {
     run.chains[c]->process(b.first_index, b.status, b.codes.data() + c, b.samples_per_channel, b.channel_count,
                            run.rows[c].output);
+    // Chain events (saturation, ...) become stored events; the chain's own list is emptied.
+    auto& events = run.rows[c].output.events;
+    for (auto& e : events) event(e.kind, std::move(e.detail), e.sample_index, int(c));
+    events.clear();
   }
 }
 

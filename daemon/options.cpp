@@ -13,6 +13,7 @@
 
 #include "daemon/asio.hpp"
 #include "storage/utc.hpp"
+#include "daemon/chain/si_value.hpp"
 
 namespace accrue::daemon {
 namespace {
@@ -94,10 +95,36 @@ struct Checker {
   }
 };
 
+// A physical value: a number in the SI unit, or text with a unit ("4.7 nF").
+bool si_number(Checker& c, const json& j, const std::string& key, const std::vector<std::string_view>& units,
+               double& out, double min, double max, bool min_open) {
+  if (j.is_string()) {
+    const chain::SiParse p = chain::parse_si_value(j.get<std::string>(), units);
+    if (!p.ok) {
+      c.fail(key, j, p.error);
+      return false;
+    }
+    return c.number(json(p.value), key, out, min, max, min_open);
+  }
+  if (!j.is_number()) {
+    c.fail(key, j, "must be a number in " + std::string(units.front()) + " or text with a unit, got " +
+                    std::string(j.type_name()));
+    return false;
+  }
+  return c.number(j, key, out, min, max, min_open);
+}
+
+bool needs_r1(chain::SensorKind k) {
+  using chain::SensorKind;
+  return k != SensorKind::charge && k != SensorKind::piezo_force && k != SensorKind::piezo_acceleration;
+}
+
 void load_channel(const json& j, const std::string& at, DaemonConfig& config, Checker& c) {
   if (!j.is_object()) return c.fail(at, j, "must be an object");
-  static const std::set<std::string> known = {"channel", "sensor", "c_farad", "r1_ohm", "r2_ohm",
-                                              "gain", "zero_code", "inverting"};
+  static const std::set<std::string> known = {
+      "channel", "sensor", "c_farad", "r1_ohm", "r2_ohm", "gain", "zero_code", "inverting", "turns", "area_m2",
+      "mutual_inductance_h", "sensitivity_v_per_m_per_s", "charge_sensitivity_c_per_n",
+      "charge_sensitivity_c_s2_per_m", "leak_correction", "baseline", "robust"};
   for (auto it = j.begin(); it != j.end(); ++it)
     if (!known.count(it.key())) c.fail(at + "." + it.key(), it.value(), "unknown key");
   int index = 0;
@@ -109,20 +136,77 @@ void load_channel(const json& j, const std::string& at, DaemonConfig& config, Ch
   if (j.contains("sensor")) {
     std::string s;
     if (c.text(j["sensor"], at + ".sensor", s) && !chain::parse_sensor_kind(s, ch.sensor))
-      c.fail(at + ".sensor", j["sensor"], "must be charge or volt_seconds");
+      c.fail(at + ".sensor", j["sensor"], "must be " + std::string(chain::sensor_kind_names()));
   }
-  if (j.contains("c_farad") && c.number(j["c_farad"], at + ".c_farad", v, 0, 1.0, true)) ch.c_farad = v;
-  if (j.contains("r1_ohm") && c.number(j["r1_ohm"], at + ".r1_ohm", v, 0, 1e15, true)) ch.r1_ohm = v;
-  if (j.contains("r2_ohm") && c.number(j["r2_ohm"], at + ".r2_ohm", v, 0, 1e15)) ch.r2_ohm = v;
+  const auto si = [&](const char* key, const std::vector<std::string_view>& units, double min, double max,
+                      bool min_open, auto&& store) {
+    if (j.contains(key) && si_number(c, j[key], at + "." + key, units, v, min, max, min_open)) store(v);
+  };
+  si("c_farad", {"F"}, 0, 1.0, true, [&](double x) { ch.c_farad = x; });
+  si("r1_ohm", {"ohm", "Ω"}, 0, 1e15, true, [&](double x) { ch.r1_ohm = x; });
+  si("r2_ohm", {"ohm", "Ω"}, 0, 1e15, false, [&](double x) { ch.r2_ohm = x; });
   if (j.contains("gain") && c.number(j["gain"], at + ".gain", v, 0, 1e6, true)) ch.gain = v;
   int z = 0;
   if (j.contains("zero_code") && c.integer(j["zero_code"], at + ".zero_code", z, -(1 << 23), (1 << 24) - 1)) ch.zero_code = z;
-  if (j.contains("inverting")) {
-    if (j["inverting"].is_boolean()) ch.inverting = j["inverting"].get<bool>();
-    else c.fail(at + ".inverting", j["inverting"], "must be true or false");
+  const auto flag = [&](const char* key, bool& out) {
+    if (!j.contains(key)) return;
+    if (j[key].is_boolean()) out = j[key].get<bool>();
+    else c.fail(at + "." + key, j[key], "must be true or false");
+  };
+  flag("inverting", ch.inverting);
+  flag("leak_correction", ch.leak_correction);
+  chain::SensorModel& m = ch.sensor_model;
+  if (j.contains("turns") && c.number(j["turns"], at + ".turns", v, 0, 1e9, true)) m.turns = v;
+  si("area_m2", {"m²", "m2"}, 0, 1e6, true, [&](double x) { m.area_m2 = x; });
+  si("mutual_inductance_h", {"H"}, 0, 1e3, true, [&](double x) { m.mutual_inductance_h = x; });
+  si("sensitivity_v_per_m_per_s", {"V/(m/s)", "V·s/m", "Vs/m"}, 0, 1e9, true,
+     [&](double x) { m.sensitivity_v_per_m_per_s = x; });
+  const bool force = ch.sensor == chain::SensorKind::piezo_force;
+  const bool accel = ch.sensor == chain::SensorKind::piezo_acceleration;
+  if (j.contains("charge_sensitivity_c_per_n")) {
+    if (!force) c.fail(at + ".charge_sensitivity_c_per_n", "applies to sensor piezo_force only (C/N)");
+    else si("charge_sensitivity_c_per_n", {"C/N"}, 0, 1.0, true, [&](double x) { m.charge_sensitivity = x; });
   }
-  if (ch.sensor == chain::SensorKind::volt_seconds && !ch.r1_ohm)
-    c.fail(at + ".r1_ohm", "is required for sensor volt_seconds (quantity = -R1*C*dV)");
+  if (j.contains("charge_sensitivity_c_s2_per_m")) {
+    if (!accel)
+      c.fail(at + ".charge_sensitivity_c_s2_per_m", "applies to sensor piezo_acceleration only (C/(m/s²))");
+    else
+      si("charge_sensitivity_c_s2_per_m", {"C/(m/s²)", "C·s²/m", "C/(m/s2)"}, 0, 1.0, true,
+         [&](double x) { m.charge_sensitivity = x; });
+  }
+  if (j.contains("baseline")) {
+    std::string s;
+    if (c.text(j["baseline"], at + ".baseline", s)) {
+      if (s == "linear") ch.baseline_model = chain::BaselineModel::linear;
+      else if (s == "quadratic") ch.baseline_model = chain::BaselineModel::quadratic;
+      else c.fail(at + ".baseline", "must be linear or quadratic, got \"" + s + "\"");
+    }
+  }
+  if (j.contains("robust")) {
+    std::string s;
+    if (c.text(j["robust"], at + ".robust", s)) {
+      if (s == "none") ch.baseline_robust = chain::BaselineRobust::none;
+      else if (s == "huber") ch.baseline_robust = chain::BaselineRobust::huber;
+      else c.fail(at + ".robust", "must be none or huber, got \"" + s + "\"");
+    }
+  }
+  const std::string kind(chain::to_string(ch.sensor));
+  if (needs_r1(ch.sensor) && !ch.r1_ohm)
+    c.fail(at + ".r1_ohm", "is required for sensor " + kind + " (the quantity scales with R1*C)");
+  if ((ch.sensor == chain::SensorKind::magnetic_flux || ch.sensor == chain::SensorKind::flux_density) &&
+      !j.contains("turns"))
+    c.fail(at + ".turns", "is required for sensor " + kind + " (coil turns N)");
+  if (ch.sensor == chain::SensorKind::flux_density && !(m.area_m2 > 0))
+    c.fail(at + ".area_m2", "is required for sensor flux_density (coil area, m²)");
+  if (ch.sensor == chain::SensorKind::rogowski_current && !(m.mutual_inductance_h > 0))
+    c.fail(at + ".mutual_inductance_h", "is required for sensor rogowski_current (mutual inductance M, H)");
+  if (ch.sensor == chain::SensorKind::displacement && !(m.sensitivity_v_per_m_per_s > 0))
+    c.fail(at + ".sensitivity_v_per_m_per_s", "is required for sensor displacement (velocity sensitivity G, V/(m/s))");
+  if (force && !(m.charge_sensitivity > 0))
+    c.fail(at + ".charge_sensitivity_c_per_n", "is required for sensor piezo_force (charge sensitivity, C/N)");
+  if (accel && !(m.charge_sensitivity > 0))
+    c.fail(at + ".charge_sensitivity_c_s2_per_m",
+           "is required for sensor piezo_acceleration (charge sensitivity, C/(m/s²))");
   config.channels[index] = ch;
 }
 

@@ -14,17 +14,23 @@
 #include <string>
 #include <vector>
 
+#include "daemon/chain/baseline_fit.hpp"
 #include "daemon/chain/calibration.hpp"
 #include "daemon/log.hpp"
 
 namespace accrue::daemon {
 
 // Per-channel calibration overrides; what is unset comes from the board's identity.
+// Values are SI: a plain number in the key's unit, or text with a unit ("4.7 nF").
 struct ChannelConfig {
   chain::SensorKind sensor = chain::SensorKind::charge;
   std::optional<double> c_farad, r1_ohm, r2_ohm, gain;
   std::optional<int> zero_code;
   bool inverting = true;
+  chain::SensorModel sensor_model;  // turns, area, M, G, S as the sensor needs
+  bool leak_correction = true;      // with R2: exact time-domain leak correction
+  chain::BaselineModel baseline_model = chain::BaselineModel::linear;
+  chain::BaselineRobust baseline_robust = chain::BaselineRobust::none;
   bool operator==(const ChannelConfig&) const = default;
 };
 

@@ -8,11 +8,16 @@ namespace accrue::storage {
   X(last_index) X(total_v) X(end_points_var_v2) X(gap_var_v2) X(closed_drift_var_v2) X(has_baseline)           \
   X(slope_v_per_s) X(slope_se_v_per_s) X(drift_span_s) X(baseline_ordinal) X(has_previous_end)               \
   X(previous_end_index) X(previous_end_rate_v_per_s) X(previous_end_rate_se) X(segments) X(flags) X(stitched_uncorrected_v)
+// Added with quadratic baselines; absent in older checkpoints (then 0, which is
+// exactly what a linear baseline means).
+#define ACCRUE_CHAIN_STATE_OPTIONAL_FIELDS(X) \
+  X(curvature_v_per_s2) X(curvature_var) X(slope_curvature_cov) X(baseline_t0_s) X(drift_curvature_span_s2)
 
 std::string chain_state_to_json(const chain::ChainState& s) {
   nlohmann::json j;
 #define X(f) j[#f] = s.f;
   ACCRUE_CHAIN_STATE_FIELDS(X)
+  ACCRUE_CHAIN_STATE_OPTIONAL_FIELDS(X)
 #undef X
   return j.dump();
 }
@@ -26,6 +31,13 @@ std::optional<chain::ChainState> chain_state_from_json(const std::string& text) 
   if (!j[#f].is_number() && !j[#f].is_boolean()) return std::nullopt; \
   s.f = j[#f].get<decltype(s.f)>();
   ACCRUE_CHAIN_STATE_FIELDS(X)
+#undef X
+#define X(f)                                                        \
+  if (j.contains(#f)) {                                             \
+    if (!j[#f].is_number()) return std::nullopt;                    \
+    s.f = j[#f].get<decltype(s.f)>();                               \
+  }
+  ACCRUE_CHAIN_STATE_OPTIONAL_FIELDS(X)
 #undef X
   return s;
 }

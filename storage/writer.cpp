@@ -70,6 +70,14 @@ Status Writer::open(const std::string& path, WriterSettings settings, Clock cloc
   std::unique_ptr<Writer> w(new Writer(std::move(db), settings, std::move(clock), std::move(free_bytes)));
   if (Status s = w->prepare_statements(); !s.ok()) return s;
   if (Status s = w->load_calibrations(); !s.ok()) return s;
+  // Learn the log's length after each commit (this hook replaces SQLite's automatic checkpoint).
+  sqlite3_wal_hook(
+      w->db_->handle(),
+      [](void* self, sqlite3*, const char*, int frames) {
+        static_cast<Writer*>(self)->wal_frames_ = frames;
+        return SQLITE_OK;
+      },
+      w.get());
   if (Status s = w->apply_max_file_bytes(settings.max_file_bytes); !s.ok()) return s;
   out = std::move(w);
   return Status::success();
@@ -153,7 +161,11 @@ static std::string calibration_definition(const chain::Calibration& cal) {
                {"gain", cal.adc.gain}, {"bipolar", cal.adc.bipolar}}},
       {"front_end", {{"r1_ohm", cal.front_end.r1_ohm}, {"c_farad", cal.front_end.c_farad},
                      {"r2_ohm", cal.front_end.r2_ohm}, {"inverting", cal.front_end.inverting}}},
-      {"sensor", std::string(chain::to_string(cal.sensor))}};
+      {"sensor", std::string(chain::to_string(cal.sensor))},
+      {"sensor_model", {{"turns", cal.sensor_model.turns}, {"area_m2", cal.sensor_model.area_m2},
+                        {"mutual_inductance_h", cal.sensor_model.mutual_inductance_h},
+                        {"sensitivity_v_per_m_per_s", cal.sensor_model.sensitivity_v_per_m_per_s},
+                        {"charge_sensitivity", cal.sensor_model.charge_sensitivity}}}};
   return def.dump();
 }
 
@@ -415,6 +427,7 @@ Status Writer::commit(std::deque<Batch>& pending, bool with_raw) {
 }
 
 void Writer::manage_wal() {
+  if (wal_frames_ < settings_.wal_checkpoint_frames) return;
   int frames = 0, done = 0;
   // Passive: never waits for readers; with journal_size_limit the file shrinks
   // back when the log restarts.

@@ -164,6 +164,7 @@ class Writer {
   double raw_stop_since_unix_ = 0.0;
   double last_retention_unix_ = 0.0;
   std::uint64_t applied_max_file_bytes_ = 0;
+  int wal_frames_ = 0;  // frames in the WAL after the last commit (wal hook)
   std::uint64_t attempt_raw_bytes_ = 0;  // encoded raw bytes in the open transaction
   std::vector<CalibrationRow> calibrations_;  // taken from new_calibrations_, not yet committed
 

@@ -11,13 +11,20 @@ namespace status_bit = protocol::status_bit;
 
 ChannelChain::ChannelChain(Calibration calibration, ChainSettings settings)
     : calibration_(calibration),
-      settings_(settings),
+      settings_(std::move(settings)),
       volts_per_code_(calibration.adc.volts_per_code()),
-      clip_v_(calibration.adc.full_scale_v / calibration.adc.gain * settings.clip_fraction),
-      settle_samples_(std::uint64_t(std::ceil(settings.settle_s / settings.sample_period_s - 1e-9))),
-      series_samples_(std::max<std::uint64_t>(1, std::uint64_t(std::llround(settings.series_interval_s /
-                                                                           settings.sample_period_s)))),
-      windows_(settings.end_window) {}
+      clip_v_(calibration.adc.full_scale_output_v() * settings_.clip_fraction),
+      settle_samples_(std::uint64_t(std::ceil(settings_.settle_s / settings_.sample_period_s - 1e-9))),
+      series_samples_(std::max<std::uint64_t>(1, std::uint64_t(std::llround(settings_.series_interval_s /
+                                                                           settings_.sample_period_s)))),
+      zero_fit_(settings_.max_baseline_points),
+      quiet_fit_(settings_.max_baseline_points),
+      windows_(settings_.end_window, calibration.adc.quantisation_sigma_v()) {
+  leak_on_ = settings_.leak_correction && calibration_.front_end.r2_ohm > 0;
+  if (leak_on_) leak_inv_tau_ = 1.0 / (calibration_.front_end.r2_ohm * calibration_.front_end.c_farad);
+  std::sort(settings_.quiet_windows.begin(), settings_.quiet_windows.end(),
+            [](const auto& a, const auto& b) { return a.first_index < b.first_index; });
+}
 
 void ChannelChain::resume(const ChainState& state) {
   state_ = state;
@@ -30,8 +37,23 @@ void ChannelChain::enter_dead(bool zero_window) {
   mode_ = Mode::dead;
   if (zero_window && !in_zero_window_) {
     in_zero_window_ = true;
-    zero_fit_ = LinearFit{};
+    zero_fit_.clear();
   }
+}
+
+double ChannelChain::leak_step(std::uint64_t index, double v, bool restart) {
+  if (!leak_on_) return v;
+  if (restart) {
+    leak_integral_v_s_ = 0.0;
+  } else {
+    // Trapezoid rule over the interval since the previous sample (one period
+    // unless samples were lost); its error is O((dt/tau)^2) per step.
+    const double dt = double(index - leak_prev_index_) * settings_.sample_period_s;
+    leak_integral_v_s_ += 0.5 * (leak_prev_v_ + v) * dt;
+  }
+  leak_prev_v_ = v;
+  leak_prev_index_ = index;
+  return v + leak_integral_v_s_ * leak_inv_tau_;
 }
 
 void ChannelChain::process(std::uint64_t first_index, std::uint8_t status, const std::int32_t* codes,
@@ -40,6 +62,7 @@ void ChannelChain::process(std::uint64_t first_index, std::uint8_t status, const
   const bool resetting = status & status_bit::reset_active;
   const bool zeroing = status & status_bit::zero_relay;
   if (resetting || zeroing) {
+    if (in_quiet_) close_quiet_window(out);
     if (!windows_.empty()) close_segment(out);
     if (in_zero_window_ && !zeroing) close_zero_window(out);
     enter_dead(zeroing);
@@ -53,6 +76,7 @@ void ChannelChain::process(std::uint64_t first_index, std::uint8_t status, const
   if (status & status_bit::overload) open_flags_ |= segment_flag::clipped;
 
   const double period = settings_.sample_period_s;
+  const auto& quiet = settings_.quiet_windows;
   for (std::size_t k = 0; k < count; ++k) {
     const std::uint64_t index = first_index + k;
     const double v = double(codes[k * stride] - calibration_.adc.zero_code) * volts_per_code_;
@@ -75,9 +99,10 @@ void ChannelChain::process(std::uint64_t first_index, std::uint8_t status, const
 
     if (mode_ == Mode::dead) {
       if (in_zero_window_) {
-        if (zero_fit_.size() == 0) zero_first_ = index;
+        const bool first = zero_fit_.seen() == 0;
+        if (first) zero_first_ = index;
         zero_last_ = index;
-        zero_fit_.add(double(index) * period, v);
+        zero_fit_.add(double(index) * period, leak_step(index, v, first));
       }
       continue;
     }
@@ -88,35 +113,101 @@ void ChannelChain::process(std::uint64_t first_index, std::uint8_t status, const
       }
       mode_ = Mode::live;
     }
+    const bool opening = windows_.empty();
+    const double w = leak_step(index, v, opening);
+    if (opening) {
+      seg_min_v_ = seg_max_v_ = v;
+      clip_event_sent_ = false;
+    }
+    seg_min_v_ = std::min(seg_min_v_, v);
+    seg_max_v_ = std::max(seg_max_v_, v);
     if (std::fabs(v) >= clip_v_) open_flags_ |= segment_flag::clipped;
-    windows_.add(index, v);
+    if ((open_flags_ & segment_flag::clipped) && !clip_event_sent_) {
+      clip_event_sent_ = true;
+      out.events.push_back({"saturation", index,
+                            "output " + std::to_string(v) + " V within the clip level " + std::to_string(clip_v_) +
+                                " V (or the board reported overload): segment delta is a lower bound"});
+    }
+    windows_.add(index, w);
+
+    // Quiet windows marked by the user: the segment goes on, and the samples
+    // also feed a baseline fit.
+    while (quiet_next_ < quiet.size() && quiet[quiet_next_].last_index < index && !in_quiet_) ++quiet_next_;
+    if (in_quiet_ && index > quiet_last_) close_quiet_window(out);
+    if (!in_quiet_ && quiet_next_ < quiet.size() && index >= quiet[quiet_next_].first_index &&
+        index <= quiet[quiet_next_].last_index) {
+      in_quiet_ = true;
+      quiet_fit_.clear();
+      quiet_first_ = index;
+      quiet_last_ = quiet[quiet_next_].last_index;
+    }
+    if (in_quiet_) {
+      quiet_fit_.add(double(index) * period, w);
+      if (index == quiet_last_) close_quiet_window(out);
+    }
   }
   state_.last_index = std::max(state_.last_index, last_index_);
 }
 
-void ChannelChain::close_zero_window(ChainOutput& out) {
-  in_zero_window_ = false;
-  if (zero_fit_.size() < settings_.min_baseline_samples) return;
-  const LineEstimate line = zero_fit_.estimate();
-  if (state_.has_baseline) {
-    const double d = state_.slope_se_v_per_s * state_.drift_span_s;
-    state_.closed_drift_var_v2 += d * d;
-  }
+void ChannelChain::adopt_baseline(const BaselineEstimate& e, std::uint64_t first, std::uint64_t last, bool quiet,
+                                  ChainOutput& out) {
+  if (state_.has_baseline) state_.closed_drift_var_v2 += drift_var_v2(state_);
   state_.has_baseline = true;
-  state_.slope_v_per_s = line.slope;
-  state_.slope_se_v_per_s = line.slope_se;
+  state_.slope_v_per_s = e.b_v_per_s;
+  state_.slope_se_v_per_s = std::sqrt(e.var_b);
+  state_.curvature_v_per_s2 = e.c_v_per_s2;
+  state_.curvature_var = e.var_c;
+  state_.slope_curvature_cov = e.cov_bc;
+  state_.baseline_t0_s = e.t0_s;
   state_.drift_span_s = 0.0;
+  state_.drift_curvature_span_s2 = 0.0;
   ++state_.baseline_ordinal;
   BaselineRecord b;
   b.ordinal = state_.baseline_ordinal;
-  b.first_index = zero_first_;
-  b.last_index = zero_last_;
-  b.samples = zero_fit_.size();
-  b.intercept_v = line.intercept;
-  b.slope_v_per_s = line.slope;
-  b.slope_se_v_per_s = line.slope_se;
-  b.residual_rms_v = line.residual_rms;
+  b.first_index = first;
+  b.last_index = last;
+  b.samples = e.n;
+  b.intercept_v = e.a_v;
+  b.slope_v_per_s = e.b_v_per_s;
+  b.slope_se_v_per_s = std::sqrt(e.var_b);
+  b.residual_rms_v = e.residual_rms_v;
+  b.quadratic = settings_.baseline_model == BaselineModel::quadratic;
+  b.curvature_v_per_s2 = e.c_v_per_s2;
+  b.curvature_se_v_per_s2 = std::sqrt(e.var_c);
+  b.slope_curvature_cov = e.cov_bc;
+  b.robust = settings_.baseline_robust == BaselineRobust::huber;
+  b.downweighted = e.downweighted;
+  b.quiet_window = quiet;
   out.baselines.push_back(b);
+}
+
+void ChannelChain::close_zero_window(ChainOutput& out) {
+  in_zero_window_ = false;
+  if (zero_fit_.seen() < settings_.min_baseline_samples) return;
+  const BaselineEstimate e = zero_fit_.fit(settings_.baseline_model, settings_.baseline_robust);
+  if (!e.ok) {
+    out.events.push_back({"baseline_rejected", zero_first_, "zero window could not be fitted"});
+    return;
+  }
+  adopt_baseline(e, zero_first_, zero_last_, false, out);
+}
+
+void ChannelChain::close_quiet_window(ChainOutput& out) {
+  in_quiet_ = false;
+  const std::uint64_t last = std::min(quiet_last_, last_index_);
+  ++quiet_next_;
+  if (quiet_fit_.seen() < settings_.min_baseline_samples) return;
+  const BaselineEstimate e = quiet_fit_.fit(settings_.baseline_model, settings_.baseline_robust);
+  if (!e.ok) return;
+  adopt_baseline(e, quiet_first_, last, true, out);
+}
+
+double ChannelChain::drift_var_v2(const ChainState& s) const {
+  // drift error = J_b*db + J_c*dc over everything this fit was applied to
+  // (fully correlated, so the J's are linear sums); var = J' Cov J.
+  const double jb = s.drift_span_s, jc = s.drift_curvature_span_s2;
+  const double var_b = s.slope_se_v_per_s * s.slope_se_v_per_s;
+  return std::max(0.0, jb * jb * var_b + 2.0 * jb * jc * s.slope_curvature_cov + jc * jc * s.curvature_var);
 }
 
 SegmentRecord ChannelChain::account_open_segment(ChainState& s) const {
@@ -128,35 +219,55 @@ SegmentRecord ChannelChain::account_open_segment(ChainState& s) const {
   r.last_index = windows_.last_index();
   r.start_v = start.value_v;
   r.end_v = end.value_v;
-  r.flags = open_flags_;
-  const double slope = s.has_baseline ? s.slope_v_per_s : 0.0;
+  r.flags = open_flags_ | (leak_on_ ? segment_flag::leak_corrected : 0u);
+  r.min_v = seg_min_v_;
+  r.max_v = seg_max_v_;
+  r.leak_v = leak_on_ ? leak_integral_v_s_ * leak_inv_tau_ : 0.0;
   if (!s.has_baseline) r.flags |= segment_flag::no_baseline;
-  const double length_s = double(r.last_index - r.first_index) * period;
-  r.drift_v = slope * length_s;
-  double span_s = length_s;
+  const double t1 = double(r.first_index) * period, t2 = double(r.last_index) * period;
+  const double length_s = t2 - t1;
+  r.duration_s = length_s;
+  // Drift over the segment from the baseline polynomial (the quadratic term is
+  // 0 for a linear fit): b*(t2 - t1) + c*((t2 - t0)^2 - (t1 - t0)^2).
+  double jb = 0.0, jc = 0.0;
+  if (s.has_baseline) {
+    const double d1 = t1 - s.baseline_t0_s, d2 = t2 - s.baseline_t0_s;
+    jb = length_s;
+    jc = d2 * d2 - d1 * d1;
+    r.drift_v = s.slope_v_per_s * jb + s.curvature_v_per_s2 * jc;
+  }
   if (s.has_previous_end && r.first_index > s.previous_end_index) {
-    // What the dead time lost: the mean of the rates either side, minus drift. Its
-    // uncertainty: the true mean rate lies between the two (uniform, range/sqrt(12)),
-    // plus the error of the two fitted rates.
+    // What the dead time lost: the mean of the rates either side, minus the
+    // drift rate at the gap's middle. Its uncertainty: the true mean rate lies
+    // between the two (uniform, range/sqrt(12)), plus the error of the two
+    // fitted rates.
     const double gap_s = double(r.first_index - s.previous_end_index) * period;
+    const double tm = (double(s.previous_end_index) * period + t1) / 2.0;
+    const double slope = s.has_baseline ? s.slope_v_per_s + 2.0 * s.curvature_v_per_s2 * (tm - s.baseline_t0_s) : 0.0;
     const double r1 = s.previous_end_rate_v_per_s, r2 = start.rate_v_per_s;
     r.gap_before_v = ((r1 + r2) / 2.0 - slope) * gap_s;
     const double spread = std::fabs(r1 - r2) / std::sqrt(12.0);
     const double fit = std::hypot(s.previous_end_rate_se, start.rate_se_v_per_s) / 2.0;
     r.gap_before_u_v = std::hypot(spread, fit) * gap_s;
     r.flags |= segment_flag::gap_estimated;
-    span_s += gap_s;
+    if (s.has_baseline) {
+      jb += gap_s;
+      jc += 2.0 * (tm - s.baseline_t0_s) * gap_s;
+    }
   }
   r.end_points_u_v = std::hypot(start.value_se_v, end.value_se_v);
   const double delta_v = r.end_v - r.start_v - r.drift_v + r.gap_before_v;
-  r.quantity = delta_v * calibration_.quantity_per_volt();
+  const double qpv = calibration_.quantity_per_volt();
+  r.quantity = delta_v * qpv;
+  r.rate = length_s > 0 ? (r.end_v - r.start_v - r.drift_v) * qpv / length_s : 0.0;
   r.baseline_ordinal = s.has_baseline ? s.baseline_ordinal : 0;
 
   s.total_v += delta_v;
   s.stitched_uncorrected_v += r.end_v - r.start_v;
   s.end_points_var_v2 += r.end_points_u_v * r.end_points_u_v;
   s.gap_var_v2 += r.gap_before_u_v * r.gap_before_u_v;
-  s.drift_span_s += span_s;
+  s.drift_span_s += jb;
+  s.drift_curvature_span_s2 += jc;
   s.has_previous_end = true;
   s.previous_end_index = r.last_index;
   s.previous_end_rate_v_per_s = end.rate_v_per_s;
@@ -165,17 +276,15 @@ SegmentRecord ChannelChain::account_open_segment(ChainState& s) const {
   ++s.segments;
   s.flags |= r.flags;
   r.ordinal = s.segments;
-  const double k = std::fabs(calibration_.quantity_per_volt());
-  r.total_after = s.total_v * calibration_.quantity_per_volt();
-  r.total_u_after = total_uncertainty_v(s) * k;
+  r.total_after = s.total_v * qpv;
+  r.total_u_after = total_uncertainty_v(s) * std::fabs(qpv);
   return r;
 }
 
 double ChannelChain::total_uncertainty_v(const ChainState& s) const {
   // Drift error is fully correlated within one baseline's span (linear sum),
   // independent between baselines (quadrature).
-  const double drift = s.slope_se_v_per_s * s.drift_span_s;
-  return std::sqrt(s.end_points_var_v2 + s.gap_var_v2 + s.closed_drift_var_v2 + drift * drift);
+  return std::sqrt(s.end_points_var_v2 + s.gap_var_v2 + s.closed_drift_var_v2 + drift_var_v2(s));
 }
 
 void ChannelChain::close_segment(ChainOutput& out) {
@@ -197,12 +306,16 @@ void ChannelChain::flush_series(ChainOutput& out) {
   p.last_v = bucket_last_;
   p.total = t.total;
   p.total_u = t.std_uncertainty;
+  if (have_series_total_) p.rate = (t.total - last_series_total_) / (double(bucket_n_) * settings_.sample_period_s);
+  last_series_total_ = t.total;
+  have_series_total_ = true;
   out.series.push_back(p);
   bucket_open_ = false;
 }
 
 void ChannelChain::finish(ChainOutput& out) {
   if (in_zero_window_) close_zero_window(out);
+  if (in_quiet_) close_quiet_window(out);
   close_segment(out);
   flush_series(out);
 }

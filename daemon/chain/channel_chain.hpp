@@ -5,17 +5,28 @@
 // increasing sample index order, and appends what they complete to a
 // ChainOutput: series points, closed segments, new baselines.
 //
-// Stages, in data-flow order: calibration (codes -> volts); segmentation
-// (reset-active and zero-relay blocks are dead, and so is a settle time after
-// each; the rest forms segments); baseline (a least-squares line on each
-// zero-relay window, whose slope is the drift); accumulation (segment deltas
-// minus drift plus estimates for each dead interval, with the uncertainty).
+// Stages, in data-flow order: calibration (codes -> volts); leak correction
+// (with R2 across C and leak_correction on, the chain works on
+// W = V + (1/(R2*C))*∫V dt, the trapezoid integral restarted at each segment
+// and zero window, so that dW = -∫Vin dt/(R1*C) exactly: DESIGN.md §4);
+// segmentation (reset-active and zero-relay blocks are dead, and so is a
+// settle time after each; the rest forms segments; outputs within the clip
+// level mark the segment clipped and raise a "saturation" event); baseline
+// (a linear or quadratic least-squares fit, optionally Huber-robust, on each
+// zero-relay window and each configured quiet window; every new window
+// re-fits, and a segment uses the baseline current when it closes);
+// accumulation (segment deltas minus drift plus estimates for each dead
+// interval from the rates either side, with the uncertainty: end-fit errors
+// and gap estimates add in quadrature, the drift error is summed linearly over
+// all segments sharing one fit and in quadrature between fits).
 //
 // Time is the board's sample index times its sample period, never host time.
 // No I/O, no clocks, no randomness: the same input gives the same output.
 #include <cstdint>
 #include <limits>
+#include <vector>
 
+#include "daemon/chain/baseline_fit.hpp"
 #include "daemon/chain/calibration.hpp"
 #include "daemon/chain/end_windows.hpp"
 #include "daemon/chain/linear_fit.hpp"
@@ -30,6 +41,17 @@ struct ChainSettings {
   double series_interval_s = 1.0;    // one SeriesPoint per this much board time
   double clip_fraction = 0.98;       // |V| at or above this fraction of full scale is clipping
   std::size_t min_baseline_samples = 16;
+  bool leak_correction = true;       // applies only when the calibration has R2 > 0
+  BaselineModel baseline_model = BaselineModel::linear;
+  BaselineRobust baseline_robust = BaselineRobust::none;
+  std::size_t max_baseline_points = 65536;  // memory bound per zero window (thinned beyond)
+  // Intervals the user marks as quiet (input known to be zero), in sample
+  // indices [first, last]; fitted like zero windows while the segment goes on.
+  struct QuietWindow {
+    std::uint64_t first_index = 0;
+    std::uint64_t last_index = 0;
+  };
+  std::vector<QuietWindow> quiet_windows;
 };
 
 class ChannelChain {
@@ -56,6 +78,11 @@ class ChannelChain {
   enum class Mode { dead, settling, live };
   void enter_dead(bool zero_window);
   void close_zero_window(ChainOutput& out);
+  void close_quiet_window(ChainOutput& out);
+  void adopt_baseline(const BaselineEstimate& e, std::uint64_t first, std::uint64_t last, bool quiet, ChainOutput& out);
+  // The leak-corrected value of raw output v at index (restarts when `restart`).
+  double leak_step(std::uint64_t index, double v, bool restart);
+  double drift_var_v2(const ChainState& s) const;
   void close_segment(ChainOutput& out);
   void flush_series(ChainOutput& out);
   // Accounts for the open segment in `state`; returns the segment record.
@@ -72,8 +99,22 @@ class ChannelChain {
   Mode mode_ = Mode::live;
   std::uint64_t settle_left_ = 0;
   bool in_zero_window_ = false;
-  LinearFit zero_fit_;
+  BaselineFit zero_fit_;
   std::uint64_t zero_first_ = 0, zero_last_ = 0;
+  bool in_quiet_ = false;
+  std::size_t quiet_next_ = 0;  // next quiet window to look for (sorted by first_index)
+  BaselineFit quiet_fit_;
+  std::uint64_t quiet_first_ = 0, quiet_last_ = 0;
+
+  bool leak_on_ = false;
+  double leak_inv_tau_ = 0.0;  // 1/(R2*C)
+  double leak_integral_v_s_ = 0.0;
+  double leak_prev_v_ = 0.0;
+  std::uint64_t leak_prev_index_ = 0;
+  double seg_min_v_ = 0.0, seg_max_v_ = 0.0;
+  bool clip_event_sent_ = false;
+  double last_series_total_ = 0.0;
+  bool have_series_total_ = false;
 
   EndWindows windows_;
   std::uint32_t open_flags_ = 0;

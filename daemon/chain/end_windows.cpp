@@ -1,10 +1,12 @@
 #include "daemon/chain/end_windows.hpp"
 
+#include <algorithm>
 #include <cmath>
 
 namespace accrue::chain {
 
-EndWindows::EndWindows(std::size_t window) : window_(window < 2 ? 2 : window) {
+EndWindows::EndWindows(std::size_t window, double noise_floor_v)
+    : window_(window < 2 ? 2 : window), noise_floor_v_(noise_floor_v) {
   head_.reserve(window_);
   tail_.reserve(window_);
 }
@@ -30,7 +32,7 @@ void EndWindows::add(std::uint64_t index, double volts) {
 }
 
 EndEstimate EndWindows::fit_at(const std::vector<Point>& points, std::size_t begin, std::size_t n, std::uint64_t at,
-                               double period_s) {
+                               double period_s) const {
   LinearFit fit;
   for (std::size_t k = 0; k < n; ++k) {
     const Point& p = points[(begin + k) % points.size()];
@@ -40,9 +42,17 @@ EndEstimate EndWindows::fit_at(const std::vector<Point>& points, std::size_t beg
   const LineEstimate line = fit.estimate();
   EndEstimate e;
   e.value_v = line.at(0.0);
-  e.value_se_v = line.se_at(0.0, fit.x_mean(), fit.sxx());
   e.rate_v_per_s = line.slope;
-  e.rate_se_v_per_s = line.slope_se;
+  const double sxx = fit.sxx();
+  const double s = std::max(line.residual_rms, noise_floor_v_);
+  if (n >= 3 && sxx > 0) {
+    const double d = 0.0 - fit.x_mean();
+    e.value_se_v = s * std::sqrt(1.0 / double(n) + d * d / sxx);
+    e.rate_se_v_per_s = s / std::sqrt(sxx);
+  } else {
+    e.value_se_v = s;  // one or two points: no residuals to learn the noise from
+    e.rate_se_v_per_s = 0.0;
+  }
   return e;
 }
 

@@ -3,6 +3,9 @@
 // so that its start and end output can be estimated by a straight-line fit
 // (less noisy than one reading, and it yields the local rate needed to
 // estimate what a following dead time loses). Fixed memory per channel.
+// The standard errors use the fit's residual rms, but never less than
+// `noise_floor_v` (the ADC's quantisation LSB/sqrt(12)): a noise-free line
+// still has quantisation error at its ends.
 #include <cstddef>
 #include <cstdint>
 #include <vector>
@@ -20,7 +23,7 @@ struct EndEstimate {
 
 class EndWindows {
  public:
-  explicit EndWindows(std::size_t window);
+  explicit EndWindows(std::size_t window, double noise_floor_v = 0.0);
   void clear();
   void add(std::uint64_t index, double volts);
   bool empty() const { return count_ == 0; }
@@ -36,9 +39,10 @@ class EndWindows {
     std::uint64_t index;
     double volts;
   };
-  static EndEstimate fit_at(const std::vector<Point>& points, std::size_t begin, std::size_t n, std::uint64_t at,
-                            double period_s);
+  EndEstimate fit_at(const std::vector<Point>& points, std::size_t begin, std::size_t n, std::uint64_t at,
+                     double period_s) const;
   std::size_t window_;
+  double noise_floor_v_;
   std::vector<Point> head_;
   std::vector<Point> tail_;  // ring buffer
   std::size_t tail_next_ = 0;

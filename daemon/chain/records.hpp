@@ -4,6 +4,7 @@
 // unit (Calibration::unit()). Plain data, no behaviour.
 #include <cstdint>
 #include <optional>
+#include <string>
 #include <vector>
 
 namespace accrue::chain {
@@ -13,6 +14,7 @@ inline constexpr std::uint32_t clipped = 0x01;        // output reached the clip
 inline constexpr std::uint32_t gap_estimated = 0x02;  // the dead time before it is an estimate from rates
 inline constexpr std::uint32_t no_baseline = 0x04;    // no drift fit was available: drift not removed
 inline constexpr std::uint32_t provisional = 0x08;    // still open: values up to the last sample seen
+inline constexpr std::uint32_t leak_corrected = 0x10; // R2 leak corrected with the exact time-domain relation
 }  // namespace segment_flag
 
 struct BaselineRecord {
@@ -24,13 +26,21 @@ struct BaselineRecord {
   double slope_v_per_s = 0.0;
   double slope_se_v_per_s = 0.0;
   double residual_rms_v = 0.0;
+  // Quadratic model only (0 otherwise): V = a + b*(t - t0) + c*(t - t0)^2, t0 the window's middle.
+  double curvature_v_per_s2 = 0.0;
+  double curvature_se_v_per_s2 = 0.0;
+  double slope_curvature_cov = 0.0;
+  bool quadratic = false;
+  bool robust = false;           // Huber IRLS
+  std::uint64_t downweighted = 0;  // robust fit: samples given less than full weight (glitches)
+  bool quiet_window = false;     // from a user-marked quiet interval, not the zero relay
 };
 
 struct SegmentRecord {
   std::uint32_t ordinal = 0;  // 1, 2, ... within the run
   std::uint64_t first_index = 0;
   std::uint64_t last_index = 0;
-  double start_v = 0.0;       // fitted output at first_index (pedestal plus what settled in)
+  double start_v = 0.0;       // fitted output at first_index: the pedestal after the reset, removed by the delta
   double end_v = 0.0;         // fitted output at last_index
   double drift_v = 0.0;       // baseline slope * segment length, subtracted
   double gap_before_v = 0.0;  // drift-corrected estimate of the output change lost in the dead time before
@@ -41,6 +51,18 @@ struct SegmentRecord {
   std::uint32_t flags = 0;
   double total_after = 0.0;  // running total including this segment
   double total_u_after = 0.0;
+  // Summary (not part of the total's arithmetic).
+  double leak_v = 0.0;        // leak correction included in end_v (0 without R2 or when switched off)
+  double duration_s = 0.0;
+  double rate = 0.0;          // mean input rate over the segment, quantity per second, drift removed
+  double min_v = 0.0, max_v = 0.0;  // raw output extremes while integrating
+};
+
+// Something the chain noticed that the daemon should log as an event.
+struct ChainEvent {
+  std::string kind;  // "saturation", "baseline_rejected"
+  std::uint64_t sample_index = 0;
+  std::string detail;
 };
 
 struct SeriesPoint {
@@ -52,6 +74,7 @@ struct SeriesPoint {
   double last_v = 0.0;
   double total = 0.0;  // running total at the bucket's last sample
   double total_u = 0.0;
+  double rate = 0.0;   // change of the total over the bucket per second (quantity/s); 0 for the first bucket
 };
 
 // Everything a restart needs to continue a total exactly where it was.
@@ -64,7 +87,14 @@ struct ChainState {
   bool has_baseline = false;
   double slope_v_per_s = 0.0;
   double slope_se_v_per_s = 0.0;
-  double drift_span_s = 0.0;  // time the current baseline has been applied over
+  double drift_span_s = 0.0;  // time the current baseline has been applied over (d drift / d slope)
+  // Quadratic baselines: the curvature, its variance and covariance with the
+  // slope, the fit's time origin, and d drift / d curvature summed over the span.
+  double curvature_v_per_s2 = 0.0;
+  double curvature_var = 0.0;
+  double slope_curvature_cov = 0.0;
+  double baseline_t0_s = 0.0;
+  double drift_curvature_span_s2 = 0.0;
   std::uint32_t baseline_ordinal = 0;
   bool has_previous_end = false;
   std::uint64_t previous_end_index = 0;
@@ -93,10 +123,12 @@ struct ChainOutput {
   std::vector<SeriesPoint> series;
   std::vector<SegmentRecord> segments;
   std::vector<BaselineRecord> baselines;
+  std::vector<ChainEvent> events;
   void clear() {
     series.clear();
     segments.clear();
     baselines.clear();
+    events.clear();
   }
 };
 
