@@ -29,6 +29,7 @@ void Ingest::event(std::string kind, std::string detail, std::optional<std::uint
   e.detail = std::move(detail);
   e.host_unix = clock_();
   batch_.events.push_back(std::move(e));
+  if (event_listener_) event_listener_(batch_.events.back());
 }
 
 void Ingest::on_bytes(std::span<const std::uint8_t> bytes, double receive_unix) {

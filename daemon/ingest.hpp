@@ -65,6 +65,14 @@ class Ingest {
     on_ack_ = std::move(h);
   }
 
+  // Records an event that did not come from the board (e.g. an API control request).
+  void record_event(std::string kind, std::string detail, std::optional<std::uint64_t> index = std::nullopt,
+                    std::optional<int> channel = std::nullopt) {
+    event(std::move(kind), std::move(detail), index, channel);
+  }
+  // Called with every event as it is recorded, before it reaches the writer (live subscribers).
+  void set_event_listener(std::function<void(const storage::EventRow&)> listener) { event_listener_ = std::move(listener); }
+
   nlohmann::json status() const;
   const protocol::Decoder& decoder() const { return decoder_; }
   const IngestCounters& counters() const { return counters_; }
@@ -117,6 +125,7 @@ class Ingest {
   std::vector<WaitingBlock> waiting_;
   static constexpr std::size_t kMaxWaitingSamples = 1u << 20;
   std::size_t waiting_samples_ = 0;
+  std::function<void(const storage::EventRow&)> event_listener_;
 };
 
 }  // namespace accrue::daemon

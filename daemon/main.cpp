@@ -2,14 +2,18 @@
 #include <unistd.h>
 
 #include <chrono>
+#include <cctype>
 #include <csignal>
 #include <cstdio>
 #include <cstring>
+#include <fstream>
 #include <iostream>
 #include <optional>
 #include <string>
 #include <thread>
 
+#include "daemon/api/hub.hpp"
+#include "daemon/api/link_control.hpp"
 #include "daemon/api/methods.hpp"
 #include "daemon/api/server.hpp"
 #include "daemon/asio.hpp"
@@ -25,6 +29,7 @@
 #include "protocol/encoder.hpp"
 #include "protocol/line_codec.hpp"
 #include "storage/reader.hpp"
+#include "storage/utc.hpp"
 #include "storage/writer.hpp"
 
 namespace {
@@ -286,6 +291,32 @@ int main(int argc, char** argv) {
       });
   link_ptr = &link;
 
+  // The API: methods over a Unix socket (and TCP when configured), live notifications, control.
+  api::MethodSettings method_settings;
+  if (config.tcp) {
+    std::ifstream token_in(config.tcp->token_file);
+    std::getline(token_in, method_settings.tcp_token);
+    while (!method_settings.tcp_token.empty() && std::isspace((unsigned char)method_settings.tcp_token.back()))
+      method_settings.tcp_token.pop_back();
+    if (!token_in && method_settings.tcp_token.empty()) {
+      log.error("tcp.token_file: cannot read " + config.tcp->token_file);
+      return 1;
+    }
+    if (method_settings.tcp_token.size() < 16) {
+      log.error("tcp.token_file: the token in " + config.tcp->token_file + " must be at least 16 characters");
+      return 1;
+    }
+  }
+  api::Hub hub;
+  api::LinkControl control(link, ingest, next_request_id);
+  api::Server* server_ptr = nullptr;
+  ingest.set_event_listener([&](const storage::EventRow& e) {
+    if (hub.subscriptions() == 0) return;
+    hub.publish_event({{"run_id", e.run_id ? nlohmann::json(*e.run_id) : nlohmann::json(nullptr)},
+                       {"channel", e.channel ? nlohmann::json(*e.channel) : nlohmann::json(nullptr)},
+                       {"sample_index", e.sample_index ? nlohmann::json(*e.sample_index) : nlohmann::json(nullptr)},
+                       {"kind", e.kind}, {"detail", e.detail}, {"host_utc", storage::rfc3339_utc(e.host_unix)}});
+  });
   api::Methods methods(config.database, [&] {
     nlohmann::json j = ingest.status();
     const auto w = writer->counters();
@@ -303,9 +334,27 @@ int main(int argc, char** argv) {
                    {"last_commit_unix", w.last_commit_unix}, {"last_error", w.last_error},
                    {"committed_last_index", committed}};
     j["database"] = config.database;
+    if (server_ptr) {
+      const auto& a = server_ptr->counters();
+      j["api"] = {{"clients", a.clients}, {"accepted", a.accepted}, {"refused_too_many", a.refused_too_many},
+                  {"cut_off", a.cut_off}, {"subscriptions", hub.subscriptions()},
+                  {"notifications_sent", hub.counters().notifications_sent}};
+    }
     return j;
-  });
-  api::Server server(io, api::ServerSettings{config.socket_path}, methods, log);
+  }, hub, &control, method_settings);
+  api::ServerSettings server_settings;
+  server_settings.socket_path = config.socket_path;
+  server_settings.socket_group = config.socket_group;
+  if (config.tcp) {
+    server_settings.tcp_address = config.tcp->address;
+    server_settings.tcp_port = std::uint16_t(config.tcp->port);
+    server_settings.tcp_allow_remote = config.tcp->allow_remote;
+    server_settings.tcp_has_token = !method_settings.tcp_token.empty();
+  }
+  server_settings.max_clients = std::size_t(config.api_max_clients);
+  server_settings.limits.max_queued_bytes = std::size_t(config.api_client_buffer_bytes);
+  api::Server server(io, server_settings, methods, hub, log);
+  server_ptr = &server;
   std::string why;
   if (!server.listen(why)) {
     log.error(why);
@@ -320,6 +369,14 @@ int main(int argc, char** argv) {
     flush_timer.expires_after(std::chrono::milliseconds(config.commit_interval_ms));
     flush_timer.async_wait([&](const boost::system::error_code& ec) {
       if (ec) return;
+      if (hub.subscriptions() > 0) {
+        // Live values at the commit cadence: what ingest holds now, committed or not.
+        nlohmann::json st = ingest.status();
+        if (st["run"].is_object())
+          hub.publish_values({{"run_id", st["run"]["run_id"]}, {"next_index", st["run"]["next_index"]},
+                              {"host_utc", storage::rfc3339_utc(unix_now())}},
+                             st["run"]["channels"]);
+      }
       ingest.flush();
       schedule_flush();
     });
@@ -414,7 +471,8 @@ int main(int argc, char** argv) {
       notifier.watchdog();
       schedule_watchdog();
     }
-    log.info("ready: listening on " + config.socket_path + ", database " + config.database + ", link " +
+    log.info("ready: listening on " + config.socket_path +
+             (server.tcp_port() ? " and TCP port " + std::to_string(server.tcp_port()) : std::string()) + ", database " + config.database + ", link " +
              to_string(link.state()));
   });
   io.run();

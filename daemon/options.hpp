@@ -116,6 +116,8 @@ struct DaemonConfig {
   std::string socket_path = "accrued.sock";
   std::string socket_group;  // empty = the daemon's own group
   std::optional<TcpListen> tcp;
+  int api_max_clients = 64;                // Unix and TCP clients together
+  int api_client_buffer_bytes = 4 << 20;   // per-client outgoing queue
   // service
   LogLevel log_level = LogLevel::info;
   double stop_timeout_s = 10.0;  // SIGTERM: flush and commit within this, else exit 1

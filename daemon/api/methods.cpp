@@ -1,8 +1,11 @@
 #include "daemon/api/methods.hpp"
 
 #include <cmath>
+#include <cstdio>
 #include <set>
 
+#include "daemon/api/token.hpp"
+#include "daemon/api/utf8.hpp"
 #include "storage/utc.hpp"
 
 namespace accrue::daemon::api {
@@ -16,15 +19,38 @@ json error_reply(const json& id, int code, const std::string& message) {
 namespace {
 
 json result_reply(const json& id, json result) { return {{"jsonrpc", "2.0"}, {"result", std::move(result)}, {"id", id}}; }
+json bad_params(const json& id, const std::string& why) {
+  return error_reply(id, rpc_error::invalid_params, "Invalid params: " + why);
+}
+json store_error(const json& id, const std::string& why) {
+  return error_reply(id, rpc_error::store_unavailable, "store unavailable: " + why);
+}
 
-struct ParamError {
-  std::string message;
-};
+// Checks that params holds only `known` keys; the first unknown is named.
+std::optional<std::string> unknown_key(const json& params, std::initializer_list<const char*> known) {
+  for (auto it = params.begin(); it != params.end(); ++it) {
+    bool found = false;
+    for (const char* k : known) found = found || it.key() == k;
+    if (!found) return "unknown parameter " + it.key();
+  }
+  return std::nullopt;
+}
 
-// Reads an optional index-or-time bound: a sample index (integer), Unix
-// seconds (number with "_unix" suffix key) or RFC 3339 text.
-std::optional<std::uint64_t> index_bound(const json& params, const char* key, const storage::RunInfo& run,
-                                         std::optional<ParamError>& err) {
+// An integer parameter in [min, max]; `err` set when present but wrong.
+std::optional<long long> int_param(const json& params, const char* key, long long min, long long max, std::string& err) {
+  if (!params.contains(key)) return std::nullopt;
+  const json& v = params[key];
+  if (!v.is_number_integer() || v.get<long long>() < min || (v.is_number_unsigned() && v.get<unsigned long long>() > (unsigned long long)max) ||
+      v.get<long long>() > max) {
+    err = std::string(key) + " must be a whole number " + std::to_string(min) + ".." + std::to_string(max);
+    return std::nullopt;
+  }
+  return v.get<long long>();
+}
+
+// A bound given as a sample index (whole number), Unix seconds (number with a
+// fraction) or RFC 3339 text. Times become the nearest sample index of `run`.
+std::optional<std::uint64_t> index_bound(const json& params, const char* key, const storage::RunInfo& run, std::string& err) {
   if (!params.contains(key)) return std::nullopt;
   const json& v = params[key];
   double unix_s = 0;
@@ -32,49 +58,101 @@ std::optional<std::uint64_t> index_bound(const json& params, const char* key, co
   if (v.is_string()) {
     auto t = storage::parse_rfc3339(v.get<std::string>());
     if (!t) {
-      err = ParamError{std::string(key) + " must be a sample index, Unix seconds or RFC 3339 time"};
+      err = std::string(key) + " must be a sample index, Unix seconds or RFC 3339 time";
       return std::nullopt;
     }
     unix_s = *t;
   } else if (v.is_number_float()) {
     unix_s = v.get<double>();
   } else {
-    err = ParamError{std::string(key) + " must be a sample index, Unix seconds or RFC 3339 time"};
+    err = std::string(key) + " must be a sample index, Unix seconds or RFC 3339 time";
     return std::nullopt;
   }
   const double index = (unix_s - run.utc_at_index0) / run.sample_period_s;
   if (!std::isfinite(index)) {
-    err = ParamError{std::string(key) + " is out of range"};
+    err = std::string(key) + " is out of range";
     return std::nullopt;
   }
-  return index <= 0 ? 0 : std::uint64_t(std::min(index, 1.8e19));
+  return index <= 0 ? 0 : std::uint64_t(std::min(std::round(index), 9.2e18));
+}
+
+// A host-time bound for events: RFC 3339 text or Unix seconds, as RFC 3339 text.
+std::optional<std::string> time_bound(const json& params, const char* key, std::string& err) {
+  if (!params.contains(key)) return std::nullopt;
+  const json& v = params[key];
+  std::optional<double> t;
+  if (v.is_string()) t = storage::parse_rfc3339(v.get<std::string>());
+  else if (v.is_number_float()) t = v.get<double>();
+  if (!t || !std::isfinite(*t) || *t < 0 || *t > 253402300799.0) {
+    err = std::string(key) + " must be RFC 3339 text or Unix seconds with a fraction";
+    return std::nullopt;
+  }
+  return storage::rfc3339_utc(*t);
+}
+
+const std::set<std::string> kSelects = {"all", "volts", "quantity", "total", "rate"};
+
+// Continuation of a window: everything the next page needs, as plain text.
+struct WindowCursor {
+  std::int64_t run_id = 0;
+  int channel = 0;
+  std::uint64_t lo = 0, hi = 0, bucket = 1, next = 0;
+  std::string select = "all";
+};
+std::string encode(const WindowCursor& c) {
+  return "w1." + std::to_string(c.run_id) + "." + std::to_string(c.channel) + "." + std::to_string(c.lo) + "." +
+         std::to_string(c.hi) + "." + std::to_string(c.bucket) + "." + std::to_string(c.next) + "." + c.select;
+}
+std::optional<WindowCursor> decode(const std::string& text) {
+  WindowCursor c;
+  long long run = 0;
+  int ch = 0, used = 0;
+  unsigned long long lo = 0, hi = 0, bucket = 0, next = 0;
+  char select[16] = {0};
+  if (std::sscanf(text.c_str(), "w1.%lld.%d.%llu.%llu.%llu.%llu.%15[a-z]%n", &run, &ch, &lo, &hi, &bucket, &next, select,
+                  &used) != 7 ||
+      std::size_t(used) != text.size())
+    return std::nullopt;
+  c.run_id = run, c.channel = ch, c.lo = lo, c.hi = hi, c.bucket = bucket, c.next = next, c.select = select;
+  if (!kSelects.count(c.select) || c.bucket == 0 || c.lo > c.hi || c.next < c.lo || c.next > c.hi || ch < 0 || ch > 254)
+    return std::nullopt;
+  return c;
 }
 
 }  // namespace
 
-Methods::Methods(std::string database, StatusSource status) : database_(std::move(database)), status_(std::move(status)) {}
+Methods::Methods(std::string database, StatusSource status, Hub& hub, Control* control, MethodSettings settings)
+    : database_(std::move(database)), status_(std::move(status)), hub_(hub), control_(control), settings_(std::move(settings)) {}
 
-storage::Reader* Methods::reader(std::string& why) {
+bool Methods::open_store(std::string& why) {
   if (!reader_) {
     if (storage::Status s = storage::Reader::open(database_, reader_); !s.ok()) {
       why = s.message;
       reader_.reset();
-      return nullptr;
+      return false;
     }
   }
-  return reader_.get();
+  if (!queries_) {
+    if (storage::Status s = StoreQueries::open(database_, queries_); !s.ok()) {
+      why = s.message;
+      queries_.reset();
+      return false;
+    }
+  }
+  return true;
 }
 
-std::optional<std::string> Methods::handle_line(std::string_view line) {
+std::optional<std::string> Methods::handle_line(std::string_view line, Peer& peer) {
+  if (auto bad = first_invalid_utf8(line))
+    return error_reply(nullptr, rpc_error::parse_error, "Parse error: invalid UTF-8 at byte " + std::to_string(*bad)).dump();
   const json request = json::parse(line.begin(), line.end(), nullptr, false);
   if (request.is_discarded()) return error_reply(nullptr, rpc_error::parse_error, "Parse error: not valid JSON").dump();
-  auto reply = handle(request);
+  auto reply = handle(request, peer);
   if (!reply) return std::nullopt;
-  // Invalid UTF-8 cannot reach here (the parser rejects it); replace to be safe.
   return reply->dump(-1, ' ', false, json::error_handler_t::replace);
 }
 
-std::optional<json> Methods::handle(const json& request) {
+std::optional<json> Methods::handle(const json& request, Peer& peer) {
   if (request.is_array()) {
     if (request.empty()) return error_reply(nullptr, rpc_error::invalid_request, "Invalid Request: empty batch");
     json replies = json::array();
@@ -83,7 +161,7 @@ std::optional<json> Methods::handle(const json& request) {
         replies.push_back(error_reply(nullptr, rpc_error::invalid_request, "Invalid Request: nested batch"));
         continue;
       }
-      if (auto reply = handle(r)) replies.push_back(std::move(*reply));
+      if (auto reply = handle(r, peer)) replies.push_back(std::move(*reply));
     }
     if (replies.empty()) return std::nullopt;
     return replies;
@@ -106,30 +184,65 @@ std::optional<json> Methods::handle(const json& request) {
     if (!params.is_object() && !params.is_array())
       return error_reply(id, rpc_error::invalid_request, "Invalid Request: params must be an object or array");
     if (params.is_array()) {
-      if (!params.empty()) return error_reply(id, rpc_error::invalid_params, "Invalid params: pass params by name");
+      if (!params.empty()) return bad_params(id, "pass params by name");
       params = json::object();
     }
   }
-  json reply = call(request["method"].get<std::string>(), params, id);
-  if (!has_id) return std::nullopt;  // a notification gets no reply, even an error
+  const std::string method = request["method"].get<std::string>();
+  if (!peer.authenticated && method != "authenticate") {
+    // A TCP peer that does not start with its token is refused and disconnected.
+    peer.close_after_reply = true;
+    return error_reply(id, rpc_error::auth_required, "authentication required: call authenticate with the token first");
+  }
+  json reply = call(method, params, id, peer);
+  if (!has_id && !peer.close_after_reply) return std::nullopt;  // a notification gets no reply, even an error
   return reply;
 }
 
-json Methods::call(const std::string& method, const json& params, const json& id) {
-  if (method == "status") return result_reply(id, status_());
-  if (method == "totals") return totals(id);
-  if (method == "runs") return runs(id);
+json Methods::call(const std::string& method, const json& params, const json& id, Peer& peer) {
+  if (method == "authenticate") {
+    if (auto k = unknown_key(params, {"token"})) return bad_params(id, *k);
+    if (!params.contains("token") || !params["token"].is_string()) return bad_params(id, "token must be a string");
+    if (peer.authenticated) return result_reply(id, {{"authenticated", true}});
+    if (!tokens_equal(settings_.tcp_token, params["token"].get<std::string>())) {
+      peer.close_after_reply = true;
+      return error_reply(id, rpc_error::auth_required, "authentication failed: wrong token");
+    }
+    peer.authenticated = true;
+    return result_reply(id, {{"authenticated", true}});
+  }
+  if (method == "status") {
+    if (auto k = unknown_key(params, {})) return bad_params(id, *k);
+    return result_reply(id, status_());
+  }
+  if (method == "totals") {
+    if (auto k = unknown_key(params, {})) return bad_params(id, *k);
+    return totals(id);
+  }
+  if (method == "runs") {
+    if (auto k = unknown_key(params, {})) return bad_params(id, *k);
+    return runs(id);
+  }
+  if (method == "channels") {
+    if (auto k = unknown_key(params, {})) return bad_params(id, *k);
+    return channels(id);
+  }
+  if (method == "calibration") return calibration(params, id);
   if (method == "window") return window(params, id);
+  if (method == "segments") return segments(params, id);
+  if (method == "events") return events(params, id);
+  if (method == "reset_now" || method == "zero_start" || method == "zero_stop" || method == "quiet_mark")
+    return control(method, params, id);
+  if (method == "subscribe") return subscribe(params, id, peer);
+  if (method == "unsubscribe") return unsubscribe(params, id, peer);
   return error_reply(id, rpc_error::method_not_found, "Method not found: " + method);
 }
 
 json Methods::totals(const json& id) {
   std::string why;
-  storage::Reader* r = reader(why);
-  if (!r) return error_reply(id, rpc_error::store_unavailable, "store unavailable: " + why);
+  if (!open_store(why)) return store_error(id, why);
   std::vector<storage::CheckpointRow> rows;
-  if (storage::Status s = r->checkpoints(rows); !s.ok())
-    return error_reply(id, rpc_error::store_unavailable, "store unavailable: " + s.message);
+  if (storage::Status s = reader_->checkpoints(rows); !s.ok()) return store_error(id, s.message);
   json out = json::array();
   for (const auto& c : rows) {
     out.push_back({{"channel", c.channel},
@@ -152,11 +265,9 @@ json Methods::totals(const json& id) {
 
 json Methods::runs(const json& id) {
   std::string why;
-  storage::Reader* r = reader(why);
-  if (!r) return error_reply(id, rpc_error::store_unavailable, "store unavailable: " + why);
+  if (!open_store(why)) return store_error(id, why);
   std::vector<storage::RunInfo> rows;
-  if (storage::Status s = r->runs(rows); !s.ok())
-    return error_reply(id, rpc_error::store_unavailable, "store unavailable: " + s.message);
+  if (storage::Status s = reader_->runs(rows); !s.ok()) return store_error(id, s.message);
   json out = json::array();
   for (const auto& run : rows) {
     out.push_back({{"run_id", run.run_id},
@@ -169,57 +280,334 @@ json Methods::runs(const json& id) {
   return result_reply(id, {{"runs", out}});
 }
 
-json Methods::window(const json& params, const json& id) {
-  static const std::set<std::string> known = {"channel", "run_id", "from", "to", "max_points"};
-  for (auto it = params.begin(); it != params.end(); ++it)
-    if (!known.count(it.key())) return error_reply(id, rpc_error::invalid_params, "Invalid params: unknown " + it.key());
-  storage::WindowQuery q;
-  if (params.contains("channel")) {
-    if (!params["channel"].is_number_integer() || params["channel"].get<long long>() < 0 ||
-        params["channel"].get<long long>() > 254)
-      return error_reply(id, rpc_error::invalid_params, "Invalid params: channel must be 0..254");
-    q.channel = params["channel"].get<int>();
-  }
-  if (params.contains("run_id")) {
-    if (!params["run_id"].is_number_integer())
-      return error_reply(id, rpc_error::invalid_params, "Invalid params: run_id must be an integer");
-    q.run_id = params["run_id"].get<std::int64_t>();
-  }
-  if (params.contains("max_points")) {
-    if (!params["max_points"].is_number_integer() || params["max_points"].get<long long>() < 1 ||
-        params["max_points"].get<long long>() > 100000)
-      return error_reply(id, rpc_error::invalid_params, "Invalid params: max_points must be 1..100000");
-    q.max_points = params["max_points"].get<std::size_t>();
-  }
+namespace {
+json calibration_json(const CalibrationRow& c) {
+  json def = json::parse(c.definition, nullptr, false);
+  if (def.is_discarded()) def = c.definition;
+  return {{"calibration_id", c.calibration_id}, {"channel", c.channel},   {"created_utc", c.created_utc},
+          {"quantity", c.quantity},             {"unit", c.unit},         {"quantity_per_volt", c.quantity_per_volt},
+          {"definition", def}};
+}
+}  // namespace
+
+json Methods::channels(const json& id) {
   std::string why;
-  storage::Reader* r = reader(why);
-  if (!r) return error_reply(id, rpc_error::store_unavailable, "store unavailable: " + why);
-  // Resolve the run first so that times can become sample indices.
-  storage::WindowResult probe;
-  storage::WindowQuery run_only = q;
-  run_only.from_index = 1;
-  run_only.to_index = 0;  // empty range: only the run is looked up
-  if (storage::Status s = r->window(run_only, probe); !s.ok())
-    return error_reply(id, rpc_error::invalid_params, "Invalid params: " + s.message);
-  std::optional<ParamError> err;
-  if (auto from = index_bound(params, "from", probe.run, err)) q.from_index = *from;
-  if (auto to = index_bound(params, "to", probe.run, err)) q.to_index = *to;
-  if (err) return error_reply(id, rpc_error::invalid_params, "Invalid params: " + err->message);
-  storage::WindowResult w;
-  if (storage::Status s = r->window(q, w); !s.ok())
-    return error_reply(id, rpc_error::store_unavailable, "store unavailable: " + s.message);
-  json points = json::array();
-  for (const auto& p : w.points) {
-    points.push_back({{"index", p.first_index}, {"utc", storage::rfc3339_utc(p.utc)}, {"samples", p.samples},
-                      {"mean_v", p.mean_v}, {"min_v", p.min_v}, {"max_v", p.max_v}, {"last_v", p.last_v},
-                      {"total", p.total}, {"total_u", p.total_u}});
+  if (!open_store(why)) return store_error(id, why);
+  std::vector<CalibrationRow> cals;
+  if (storage::Status s = queries_->calibrations(std::nullopt, cals); !s.ok()) return store_error(id, s.message);
+  const json status = status_();
+  std::map<int, json> live;
+  if (status.contains("run") && status["run"].is_object())
+    for (const auto& ch : status["run"]["channels"]) live[ch.value("channel", -1)] = ch;
+  std::map<int, json> out;
+  for (const auto& c : cals) {
+    json& ch = out[c.channel];
+    const int versions = ch.is_object() ? ch.value("calibration_versions", 0) : 0;
+    ch = {{"channel", c.channel}, {"calibration", calibration_json(c)}, {"calibration_versions", versions + 1}};
   }
-  return result_reply(id, {{"run_id", w.run.run_id},
-                           {"channel", q.channel},
-                           {"quantity", w.quantity},
-                           {"unit", w.unit},
-                           {"sample_period_s", w.run.sample_period_s},
-                           {"points", points}});
+  for (const auto& [channel, l] : live)
+    if (!out.count(channel)) out[channel] = {{"channel", channel}, {"calibration", nullptr}, {"calibration_versions", 0}};
+  json list = json::array();
+  for (auto& [channel, ch] : out) {
+    ch["live"] = live.count(channel) ? live[channel] : json(nullptr);
+    list.push_back(ch);
+  }
+  return result_reply(id, {{"channels", list}});
+}
+
+json Methods::calibration(const json& params, const json& id) {
+  if (auto k = unknown_key(params, {"channel"})) return bad_params(id, *k);
+  std::string err;
+  auto channel = int_param(params, "channel", 0, 254, err);
+  if (!err.empty()) return bad_params(id, err);
+  std::string why;
+  if (!open_store(why)) return store_error(id, why);
+  std::vector<CalibrationRow> cals;
+  if (storage::Status s = queries_->calibrations(channel ? std::optional<int>(int(*channel)) : std::nullopt, cals); !s.ok())
+    return store_error(id, s.message);
+  json list = json::array();
+  for (const auto& c : cals) list.push_back(calibration_json(c));
+  return result_reply(id, {{"versions", list}});
+}
+
+bool Methods::resolve_run(const json& params, const json& id, storage::RunInfo& run, json& err) {
+  std::string why;
+  auto run_id = int_param(params, "run_id", 1, INT64_MAX, why);
+  if (!why.empty()) {
+    err = bad_params(id, why);
+    return false;
+  }
+  if (!open_store(why)) {
+    err = store_error(id, why);
+    return false;
+  }
+  std::vector<storage::RunInfo> runs;
+  if (storage::Status s = reader_->runs(runs); !s.ok()) {
+    err = store_error(id, s.message);
+    return false;
+  }
+  for (const auto& r : runs)
+    if (!run_id || r.run_id == *run_id) run = r;  // the newest when none is named
+  if (runs.empty() || (run_id && run.run_id != *run_id)) {
+    err = bad_params(id, run_id ? "no such run " + std::to_string(*run_id) : "no runs recorded yet");
+    return false;
+  }
+  return true;
+}
+
+json Methods::window(const json& params, const json& id) {
+  if (auto k = unknown_key(params, {"channel", "run_id", "from", "to", "max_points", "select", "continuation"}))
+    return bad_params(id, *k);
+  WindowCursor cursor;
+  std::size_t max_points = 1000;
+  std::optional<std::uint64_t> start;
+  storage::RunInfo run;
+  json err;
+  if (params.contains("continuation")) {
+    if (params.size() != 1) return bad_params(id, "continuation stands alone: the token carries the rest");
+    if (!params["continuation"].is_string()) return bad_params(id, "continuation must be a string");
+    auto c = decode(params["continuation"].get<std::string>());
+    if (!c) return bad_params(id, "continuation is not a token this daemon gave out");
+    cursor = *c;
+    start = cursor.next;
+    if (!resolve_run(json{{"run_id", cursor.run_id}}, id, run, err)) return err;
+  } else {
+    std::string why;
+    auto channel = int_param(params, "channel", 0, 254, why);
+    auto points = int_param(params, "max_points", 1, 1000000, why);
+    if (!why.empty()) return bad_params(id, why);
+    if (params.contains("select") && (!params["select"].is_string() || !kSelects.count(params["select"].get<std::string>())))
+      return bad_params(id, "select must be one of all, volts, quantity, total, rate");
+    cursor.select = params.value("select", "all");
+    cursor.channel = int(channel.value_or(0));
+    max_points = std::size_t(points.value_or(1000));
+    if (!resolve_run(params, id, run, err)) return err;
+    cursor.run_id = run.run_id;
+    cursor.lo = index_bound(params, "from", run, why).value_or(0);
+    cursor.hi = index_bound(params, "to", run, why).value_or(INT64_MAX);
+    if (!why.empty()) return bad_params(id, why);
+    if (cursor.lo > cursor.hi) return bad_params(id, "from is after to");
+    cursor.bucket = 0;
+  }
+  WindowPage page;
+  if (storage::Status s = queries_->window_page(cursor.run_id, cursor.channel, cursor.lo, cursor.hi, max_points,
+                                                settings_.page_points, cursor.bucket, start, page);
+      !s.ok())
+    return store_error(id, s.message);
+  const std::string& sel = cursor.select;
+  const bool all = sel == "all";
+  json points = json::array();
+  for (const auto& b : page.buckets) {
+    json p = {{"index", b.first_index},
+              {"utc", storage::rfc3339_utc(run.utc_at_index0 + double(b.first_index) * run.sample_period_s)},
+              {"samples", b.samples}};
+    if (all || sel == "volts") {
+      p["mean_v"] = b.mean_v;
+      p["min_v"] = b.min_v;
+      p["max_v"] = b.max_v;
+      p["last_v"] = b.last_v;
+    }
+    if (all || sel == "total") {
+      p["total"] = b.total;
+      p["total_u"] = b.total_u;
+    }
+    if (all || sel == "quantity") p["delta"] = b.delta;
+    if (all || sel == "rate") {
+      const double span_s = double(b.samples) * run.sample_period_s;
+      p["rate"] = span_s > 0 ? b.delta / span_s : 0.0;
+    }
+    points.push_back(std::move(p));
+  }
+  json cont = nullptr;
+  if (page.next_start) {
+    WindowCursor next = cursor;
+    next.lo = page.lo, next.hi = page.hi, next.bucket = page.bucket_samples, next.next = *page.next_start;
+    cont = encode(next);
+  }
+  return result_reply(id, {{"run_id", run.run_id},
+                           {"channel", cursor.channel},
+                           {"select", sel},
+                           {"quantity", page.quantity},
+                           {"unit", page.unit},
+                           {"rate_unit", page.unit.empty() ? "" : page.unit + "/s"},
+                           {"sample_period_s", run.sample_period_s},
+                           {"bucket_samples", page.bucket_samples},
+                           {"from_index", page.lo},
+                           {"to_index", page.hi},
+                           {"points", points},
+                           {"continuation", cont}});
+}
+
+json Methods::segments(const json& params, const json& id) {
+  if (auto k = unknown_key(params, {"channel", "run_id", "from", "to", "after", "limit"})) return bad_params(id, *k);
+  std::string why;
+  auto channel = int_param(params, "channel", 0, 254, why);
+  auto after = int_param(params, "after", 0, INT64_MAX, why);
+  auto limit = int_param(params, "limit", 1, (long long)settings_.page_rows * 10, why);
+  if (!why.empty()) return bad_params(id, why);
+  storage::RunInfo run;
+  json err;
+  if (!resolve_run(params, id, run, err)) return err;
+  const std::uint64_t from = index_bound(params, "from", run, why).value_or(0);
+  const std::uint64_t to = index_bound(params, "to", run, why).value_or(INT64_MAX);
+  if (!why.empty()) return bad_params(id, why);
+  const std::size_t n = std::size_t(limit.value_or((long long)settings_.page_rows));
+  std::vector<SegmentRow> rows;
+  if (storage::Status s = queries_->segments(run.run_id, int(channel.value_or(0)), from, to, after.value_or(0), n + 1, rows);
+      !s.ok())
+    return store_error(id, s.message);
+  const bool more = rows.size() > n;
+  if (more) rows.pop_back();
+  json list = json::array();
+  for (const auto& s : rows) {
+    list.push_back({{"ordinal", s.ordinal},
+                    {"first_index", s.first_index},
+                    {"last_index", s.last_index},
+                    {"start_utc", storage::rfc3339_utc(run.utc_at_index0 + double(s.first_index) * run.sample_period_s)},
+                    {"length_s", double(s.last_index - s.first_index) * run.sample_period_s},
+                    {"start_v", s.start_v},
+                    {"end_v", s.end_v},
+                    {"drift_v", s.drift_v},
+                    {"gap_before_v", s.gap_before_v},
+                    {"gap_before_u_v", s.gap_before_u_v},
+                    {"end_points_u_v", s.end_points_u_v},
+                    {"quantity", s.quantity},
+                    {"baseline_ordinal", s.baseline_ordinal},
+                    {"flags", s.flags},
+                    {"total_after", s.total_after},
+                    {"total_u_after", s.total_u_after},
+                    {"calibration_id", s.calibration_id}});
+  }
+  return result_reply(id, {{"run_id", run.run_id},
+                           {"channel", channel.value_or(0)},
+                           {"segments", list},
+                           {"next_after", more ? json(rows.back().ordinal) : json(nullptr)}});
+}
+
+json Methods::events(const json& params, const json& id) {
+  if (auto k = unknown_key(params, {"run_id", "channel", "kind", "from", "to", "after", "limit"})) return bad_params(id, *k);
+  std::string why;
+  EventFilter f;
+  if (auto r = int_param(params, "run_id", 1, INT64_MAX, why)) f.run_id = *r;
+  if (auto c = int_param(params, "channel", 0, 254, why)) f.channel = int(*c);
+  f.after_id = int_param(params, "after", 0, INT64_MAX, why).value_or(0);
+  const std::size_t n = std::size_t(int_param(params, "limit", 1, (long long)settings_.page_rows * 10, why)
+                                        .value_or((long long)settings_.page_rows));
+  if (!why.empty()) return bad_params(id, why);
+  if (params.contains("kind")) {
+    const json& k = params["kind"];
+    if (k.is_string()) f.kinds.push_back(k.get<std::string>());
+    else if (k.is_array() && !k.empty() && k.size() <= 32) {
+      for (const auto& e : k) {
+        if (!e.is_string()) return bad_params(id, "kind must be a string or a list of strings");
+        f.kinds.push_back(e.get<std::string>());
+      }
+    } else {
+      return bad_params(id, "kind must be a string or a list of 1..32 strings");
+    }
+  }
+  // A whole number bounds the sample index; a time bounds the host time.
+  for (const char* key : {"from", "to"}) {
+    if (!params.contains(key)) continue;
+    const json& v = params[key];
+    const bool from = key[0] == 'f';
+    if (v.is_number_unsigned() || (v.is_number_integer() && v.get<long long>() >= 0)) {
+      (from ? f.from_index : f.to_index) = v.get<std::uint64_t>();
+    } else {
+      auto t = time_bound(params, key, why);
+      if (!t) return bad_params(id, why);
+      (from ? f.from_utc : f.to_utc) = *t;
+    }
+  }
+  f.limit = n + 1;
+  std::string store_why;
+  if (!open_store(store_why)) return store_error(id, store_why);
+  std::vector<EventOut> rows;
+  if (storage::Status s = queries_->events(f, rows); !s.ok()) return store_error(id, s.message);
+  const bool more = rows.size() > n;
+  if (more) rows.pop_back();
+  json list = json::array();
+  for (const auto& e : rows) {
+    list.push_back({{"event_id", e.event_id},
+                    {"run_id", e.run_id ? json(*e.run_id) : json(nullptr)},
+                    {"channel", e.channel ? json(*e.channel) : json(nullptr)},
+                    {"sample_index", e.sample_index ? json(*e.sample_index) : json(nullptr)},
+                    {"kind", e.kind},
+                    {"detail", e.detail},
+                    {"host_utc", e.host_utc}});
+  }
+  return result_reply(id, {{"events", list}, {"next_after", more ? json(rows.back().event_id) : json(nullptr)}});
+}
+
+json Methods::control(const std::string& method, const json& params, const json& id) {
+  std::string why;
+  ControlResult r;
+  if (method == "reset_now") {
+    if (auto k = unknown_key(params, {})) return bad_params(id, *k);
+    if (!control_) return error_reply(id, rpc_error::control_refused, "control is not available");
+    r = control_->reset_now();
+  } else if (method == "zero_start" || method == "zero_stop") {
+    if (auto k = unknown_key(params, {})) return bad_params(id, *k);
+    if (!control_) return error_reply(id, rpc_error::control_refused, "control is not available");
+    r = control_->zero_window(method == "zero_start");
+  } else {
+    if (auto k = unknown_key(params, {"channel", "run_id", "from", "to", "note"})) return bad_params(id, *k);
+    auto channel = int_param(params, "channel", 0, 254, why);
+    if (!why.empty()) return bad_params(id, why);
+    if (!params.contains("from") || !params.contains("to")) return bad_params(id, "from and to are required");
+    if (params.contains("note") && (!params["note"].is_string() || params["note"].get<std::string>().size() > 1000))
+      return bad_params(id, "note must be text of at most 1000 bytes");
+    storage::RunInfo run;
+    json err;
+    if (!resolve_run(params, id, run, err)) return err;
+    const auto from = index_bound(params, "from", run, why);
+    const auto to = index_bound(params, "to", run, why);
+    if (!why.empty()) return bad_params(id, why);
+    if (*from > *to) return bad_params(id, "from is after to");
+    if (!control_) return error_reply(id, rpc_error::control_refused, "control is not available");
+    r = control_->mark_quiet(channel ? std::optional<int>(int(*channel)) : std::nullopt, *from, *to,
+                             params.value("note", ""));
+  }
+  if (!r.ok) return error_reply(id, rpc_error::control_refused, "control refused: " + r.message);
+  return result_reply(id, r.detail);
+}
+
+json Methods::subscribe(const json& params, const json& id, Peer& peer) {
+  if (auto k = unknown_key(params, {"topics", "channels"})) return bad_params(id, *k);
+  unsigned topics = 0;
+  if (!params.contains("topics")) topics = Hub::values | Hub::events;
+  else if (!params["topics"].is_array() || params["topics"].empty()) return bad_params(id, "topics must be a list of values, events");
+  else {
+    for (const auto& t : params["topics"]) {
+      if (t == "values") topics |= Hub::values;
+      else if (t == "events") topics |= Hub::events;
+      else return bad_params(id, "topics must be a list of values, events");
+    }
+  }
+  std::set<int> channels;
+  if (params.contains("channels")) {
+    if (!params["channels"].is_array()) return bad_params(id, "channels must be a list of channel numbers");
+    for (const auto& c : params["channels"]) {
+      if (!c.is_number_integer() || c.get<long long>() < 0 || c.get<long long>() > 254)
+        return bad_params(id, "channels must be a list of channel numbers 0..254");
+      channels.insert(c.get<int>());
+    }
+  }
+  if (!peer.sink_ptr) return error_reply(id, rpc_error::internal_error, "this connection cannot take notifications");
+  const std::int64_t sub = hub_.subscribe(peer.sink, topics, std::move(channels));
+  json names = json::array();
+  if (topics & Hub::values) names.push_back("values");
+  if (topics & Hub::events) names.push_back("events");
+  return result_reply(id, {{"subscription", sub}, {"topics", names}});
+}
+
+json Methods::unsubscribe(const json& params, const json& id, Peer& peer) {
+  if (auto k = unknown_key(params, {"subscription"})) return bad_params(id, *k);
+  std::string why;
+  auto sub = int_param(params, "subscription", 1, INT64_MAX, why);
+  if (!why.empty() || !sub) return bad_params(id, why.empty() ? "subscription is required" : why);
+  if (!hub_.unsubscribe(peer.sink_ptr, *sub)) return bad_params(id, "no such subscription on this connection");
+  return result_reply(id, {{"subscription", *sub}, {"active", false}});
 }
 
 }  // namespace accrue::daemon::api

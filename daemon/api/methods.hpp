@@ -1,10 +1,12 @@
 #pragma once
-// Methods is the JSON-RPC 2.0 dispatcher: one request (or batch) as parsed
-// JSON in, the reply out (nullopt for notifications). It validates the
+// Methods is the JSON-RPC 2.0 dispatcher: one request line (or batch) from a
+// peer in, the reply line out (nullopt for notifications). It validates the
 // envelope and every parameter and answers errors with the codes JSON-RPC 2.0
 // defines (-32700 parse, -32600 invalid request, -32601 no such method, -32602
-// bad params, -32603 internal); -32001 means the store could not answer.
-// It never throws. Methods and fields are documented in docs/api.md.
+// bad params, -32603 internal) and our own (-32001 store unavailable, -32002
+// authentication required, -32003 cut off, -32004 control refused, -32005 too
+// many clients). It never throws. Methods and fields are in docs/api.md.
+// Runs on the Asio thread; it owns its two read-only store connections.
 #include <functional>
 #include <memory>
 #include <optional>
@@ -12,6 +14,10 @@
 
 #include <nlohmann/json.hpp>
 
+#include "daemon/api/control.hpp"
+#include "daemon/api/hub.hpp"
+#include "daemon/api/sink.hpp"
+#include "daemon/api/store_queries.hpp"
 #include "storage/reader.hpp"
 
 namespace accrue::daemon::api {
@@ -23,29 +29,61 @@ inline constexpr int method_not_found = -32601;
 inline constexpr int invalid_params = -32602;
 inline constexpr int internal_error = -32603;
 inline constexpr int store_unavailable = -32001;
+inline constexpr int auth_required = -32002;
+inline constexpr int cut_off = -32003;
+inline constexpr int control_refused = -32004;
+inline constexpr int too_many_clients = -32005;
 }  // namespace rpc_error
 
 nlohmann::json error_reply(const nlohmann::json& id, int code, const std::string& message);
+
+// What Methods knows of the connection a request came on.
+struct Peer {
+  bool authenticated = true;       // false on TCP until "authenticate" succeeds
+  bool close_after_reply = false;  // set by Methods: the server closes after this reply
+  std::weak_ptr<Sink> sink;        // for subscriptions
+  const Sink* sink_ptr = nullptr;
+};
+
+struct MethodSettings {
+  std::size_t page_points = 5000;  // points per window reply; more come by continuation
+  std::size_t page_rows = 1000;    // default (and cap 10x) for segments and events
+  std::string tcp_token;           // what "authenticate" compares against
+};
 
 class Methods {
  public:
   using StatusSource = std::function<nlohmann::json()>;
   // `database` is opened read-only on first use, so the daemon starts before the file has data.
-  Methods(std::string database, StatusSource status);
+  // `control` may be null (then control methods answer -32004).
+  Methods(std::string database, StatusSource status, Hub& hub, Control* control, MethodSettings settings = {});
   // A whole request line: parses it and dispatches.
-  std::optional<std::string> handle_line(std::string_view line);
-  std::optional<nlohmann::json> handle(const nlohmann::json& request);
+  std::optional<std::string> handle_line(std::string_view line, Peer& peer);
+  std::optional<nlohmann::json> handle(const nlohmann::json& request, Peer& peer);
 
  private:
-  nlohmann::json call(const std::string& method, const nlohmann::json& params, const nlohmann::json& id);
+  nlohmann::json call(const std::string& method, const nlohmann::json& params, const nlohmann::json& id, Peer& peer);
   nlohmann::json totals(const nlohmann::json& id);
   nlohmann::json runs(const nlohmann::json& id);
+  nlohmann::json channels(const nlohmann::json& id);
+  nlohmann::json calibration(const nlohmann::json& params, const nlohmann::json& id);
   nlohmann::json window(const nlohmann::json& params, const nlohmann::json& id);
-  storage::Reader* reader(std::string& why);
+  nlohmann::json segments(const nlohmann::json& params, const nlohmann::json& id);
+  nlohmann::json events(const nlohmann::json& params, const nlohmann::json& id);
+  nlohmann::json control(const std::string& method, const nlohmann::json& params, const nlohmann::json& id);
+  nlohmann::json subscribe(const nlohmann::json& params, const nlohmann::json& id, Peer& peer);
+  nlohmann::json unsubscribe(const nlohmann::json& params, const nlohmann::json& id, Peer& peer);
+  bool open_store(std::string& why);
+  // The run a request names (run_id) or the newest; false with an error reply.
+  bool resolve_run(const nlohmann::json& params, const nlohmann::json& id, storage::RunInfo& run, nlohmann::json& err);
 
   std::string database_;
   StatusSource status_;
+  Hub& hub_;
+  Control* control_;
+  MethodSettings settings_;
   std::unique_ptr<storage::Reader> reader_;
+  std::unique_ptr<StoreQueries> queries_;
 };
 
 }  // namespace accrue::daemon::api

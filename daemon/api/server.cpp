@@ -1,107 +1,127 @@
 #include "daemon/api/server.hpp"
 
+#include <grp.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
-#include <array>
-#include <cstring>
+#include <vector>
 
 namespace accrue::daemon::api {
 
-Server::Server(asio::io_context& io, ServerSettings settings, Methods& methods, Logger& log)
-    : io_(io), settings_(std::move(settings)), methods_(methods), log_(log), acceptor_(io) {}
+Server::Server(asio::io_context& io, ServerSettings settings, Methods& methods, Hub& hub, Logger& log)
+    : io_(io), settings_(std::move(settings)), methods_(methods), hub_(hub), log_(log), unix_acceptor_(io), tcp_acceptor_(io) {}
+
+namespace {
+bool lookup_group(const std::string& name, gid_t& gid, std::string& why) {
+  std::vector<char> buf(16384);
+  group g{};
+  group* found = nullptr;
+  if (::getgrnam_r(name.c_str(), &g, buf.data(), buf.size(), &found) != 0 || !found) {
+    why = "socket_group: no such group " + name;
+    return false;
+  }
+  gid = found->gr_gid;
+  return true;
+}
+}  // namespace
 
 bool Server::listen(std::string& why) {
   ::unlink(settings_.socket_path.c_str());
   boost::system::error_code ec;
   const asio::local::stream_protocol::endpoint endpoint(settings_.socket_path);
-  acceptor_.open(endpoint.protocol(), ec);
-  if (!ec) acceptor_.bind(endpoint, ec);
-  if (!ec) acceptor_.listen(asio::socket_base::max_listen_connections, ec);
+  unix_acceptor_.open(endpoint.protocol(), ec);
+  if (!ec) unix_acceptor_.bind(endpoint, ec);
+  if (!ec) unix_acceptor_.listen(asio::socket_base::max_listen_connections, ec);
   if (ec) {
     why = "cannot listen on " + settings_.socket_path + ": " + ec.message();
     return false;
+  }
+  if (!settings_.socket_group.empty()) {
+    gid_t gid = 0;
+    if (!lookup_group(settings_.socket_group, gid, why)) return false;
+    if (::chown(settings_.socket_path.c_str(), uid_t(-1), gid) != 0) {
+      why = "cannot give " + settings_.socket_path + " to group " + settings_.socket_group + ": " + std::strerror(errno);
+      return false;
+    }
   }
   if (::chmod(settings_.socket_path.c_str(), 0660) != 0) {
     why = "cannot set mode 0660 on " + settings_.socket_path;
     return false;
   }
-  asio::co_spawn(io_, accept_loop(), asio::detached);
+  if (!settings_.tcp_address.empty()) {
+    const auto address = asio::ip::make_address(settings_.tcp_address, ec);
+    if (ec) {
+      why = "tcp_listen: " + settings_.tcp_address + " is not an IP address";
+      return false;
+    }
+    if (!address.is_loopback() && !settings_.tcp_allow_remote) {
+      why = "tcp_listen: " + settings_.tcp_address + " is not a loopback address (set tcp_allow_remote to allow it)";
+      return false;
+    }
+    if (!settings_.tcp_has_token) {
+      why = "tcp_listen: TCP needs a token (tcp_token_file)";
+      return false;
+    }
+    const asio::ip::tcp::endpoint tcp_endpoint(address, settings_.tcp_port);
+    tcp_acceptor_.open(tcp_endpoint.protocol(), ec);
+    if (!ec) tcp_acceptor_.set_option(asio::socket_base::reuse_address(true), ec);
+    if (!ec) tcp_acceptor_.bind(tcp_endpoint, ec);
+    if (!ec) tcp_acceptor_.listen(asio::socket_base::max_listen_connections, ec);
+    if (ec) {
+      why = "cannot listen on TCP " + settings_.tcp_address + ":" + std::to_string(settings_.tcp_port) + ": " + ec.message();
+      return false;
+    }
+    bound_tcp_port_ = tcp_acceptor_.local_endpoint().port();
+    asio::co_spawn(io_, accept_loop(tcp_acceptor_, true), asio::detached);
+  }
+  asio::co_spawn(io_, accept_loop(unix_acceptor_, false), asio::detached);
   return true;
 }
 
 void Server::stop() {
   boost::system::error_code ec;
-  acceptor_.close(ec);
+  unix_acceptor_.close(ec);
+  tcp_acceptor_.close(ec);
   ::unlink(settings_.socket_path.c_str());
 }
 
-asio::awaitable<void> Server::accept_loop() {
+void Server::finished(const Sink* sink, bool cut_off) {
+  hub_.drop(sink);
+  --counters_.clients;
+  if (cut_off) {
+    ++counters_.cut_off;
+    log_.warning("api: cut off a client that did not read its notifications");
+  }
+}
+
+template <typename Acceptor>
+asio::awaitable<void> Server::accept_loop(Acceptor& acceptor, bool needs_token) {
+  using Socket = typename Acceptor::protocol_type::socket;
   for (;;) {
     boost::system::error_code ec;
-    Socket socket = co_await acceptor_.async_accept(asio::redirect_error(asio::use_awaitable, ec));
-    if (ec == asio::error::operation_aborted || !acceptor_.is_open()) co_return;
+    Socket socket = co_await acceptor.async_accept(asio::redirect_error(asio::use_awaitable, ec));
+    if (ec == asio::error::operation_aborted || !acceptor.is_open()) co_return;
     if (ec) {
       log_.warning("api accept failed: " + ec.message());
       continue;
     }
-    asio::co_spawn(io_, session(std::move(socket)), asio::detached);
-  }
-}
-
-asio::awaitable<void> Server::session(Socket socket) {
-  boost::system::error_code ec;
-  if (clients_ >= settings_.max_clients) {
-    const std::string line = error_reply(nullptr, rpc_error::internal_error, "too many clients").dump() + "\n";
-    co_await asio::async_write(socket, asio::buffer(line), asio::redirect_error(asio::use_awaitable, ec));
-    co_return;
-  }
-  ++clients_;
-  std::string line;
-  bool discarding = false;  // inside an oversize line: drop until its newline
-  std::array<char, 8192> chunk;
-  for (;;) {
-    const std::size_t n = co_await socket.async_read_some(asio::buffer(chunk), asio::redirect_error(asio::use_awaitable, ec));
-    if (ec) break;
-    std::size_t at = 0;
-    while (at < n) {
-      const char* begin = chunk.data() + at;
-      const char* nl = static_cast<const char*>(std::memchr(begin, '\n', n - at));
-      const std::size_t take = nl ? std::size_t(nl - begin) : n - at;
-      at += take + (nl ? 1 : 0);
-      if (!discarding) {
-        if (line.size() + take > settings_.max_request_bytes) {
-          discarding = true;
-          line.clear();
-        } else {
-          line.append(begin, take);
-        }
-      }
-      if (!nl) continue;
-      std::string reply;
-      if (discarding) {
-        reply = error_reply(nullptr, rpc_error::invalid_request,
-                            "Invalid Request: line longer than " + std::to_string(settings_.max_request_bytes) + " bytes")
-                    .dump();
-        discarding = false;
-      } else {
-        if (!line.empty() && line.back() == '\r') line.pop_back();
-        if (line.find_first_not_of(" \t") == std::string::npos) {
-          line.clear();
-          continue;
-        }
-        auto r = methods_.handle_line(line);
-        line.clear();
-        if (!r) continue;
-        reply = std::move(*r);
-      }
-      reply.push_back('\n');
-      co_await asio::async_write(socket, asio::buffer(reply), asio::redirect_error(asio::use_awaitable, ec));
-      if (ec) break;
+    if (counters_.clients >= settings_.max_clients) {
+      ++counters_.refused_too_many;
+      // Best effort, without waiting: the socket is fresh, its buffer empty.
+      const std::string line =
+          error_reply(nullptr, rpc_error::too_many_clients,
+                      "too many clients (" + std::to_string(settings_.max_clients) + ")").dump() + "\n";
+      socket.non_blocking(true, ec);
+      socket.write_some(asio::buffer(line), ec);
+      socket.close(ec);
+      continue;
     }
-    if (ec) break;
+    ++counters_.accepted;
+    ++counters_.clients;
+    auto c = std::make_shared<Connection<Socket>>(std::move(socket), settings_.limits, methods_, needs_token,
+                                                  [this](const Sink* s, bool cut) { finished(s, cut); });
+    c->start();
   }
-  --clients_;
 }
 
 }  // namespace accrue::daemon::api

@@ -1,0 +1,193 @@
+#pragma once
+// Connection serves one client on one stream socket (Unix or TCP): it reads
+// newline-delimited requests of at most max_request_bytes, hands each to
+// Methods, and queues the reply. Writing runs as its own coroutine from a
+// queue, so nothing the daemon does ever waits on this client:
+// - replies: the reader stops reading new requests while more than
+//   max_queued_bytes wait to be written (back-pressure on that client only);
+// - notifications: if the queue is over max_queued_bytes, the client is cut
+//   off: the queue is dropped, one "cut_off" error notification is queued
+//   and the socket closed after it is written or after a 2 s grace.
+// An oversize line gets an Invalid Request error and is skipped; the
+// connection carries on. Owned by shared_ptr from its coroutines; the Hub
+// holds it weakly. Asio thread only.
+#include <cstring>
+#include <deque>
+#include <functional>
+#include <memory>
+#include <string>
+
+#include "daemon/api/methods.hpp"
+#include "daemon/api/sink.hpp"
+#include "daemon/asio.hpp"
+
+namespace accrue::daemon::api {
+
+struct ConnectionLimits {
+  std::size_t max_request_bytes = 64 * 1024;
+  std::size_t max_queued_bytes = 4u << 20;
+};
+
+template <typename Socket>
+class Connection : public Sink, public std::enable_shared_from_this<Connection<Socket>> {
+ public:
+  using Done = std::function<void(const Sink*, bool cut_off)>;
+  Connection(Socket socket, ConnectionLimits limits, Methods& methods, bool needs_token, Done done)
+      : socket_(std::move(socket)),
+        limits_(limits),
+        methods_(methods),
+        done_(std::move(done)),
+        drained_(socket_.get_executor()),
+        grace_(socket_.get_executor()) {
+    peer_.authenticated = !needs_token;
+  }
+
+  void start() {
+    peer_.sink = this->weak_from_this();
+    peer_.sink_ptr = this;
+    asio::co_spawn(socket_.get_executor(), read_loop(this->shared_from_this()), asio::detached);
+  }
+
+  bool notify(std::string line) override {
+    if (closing_) return false;
+    if (queued_bytes_ + line.size() > limits_.max_queued_bytes) {
+      cut_off("outgoing buffer over " + std::to_string(limits_.max_queued_bytes) + " bytes: the client is not reading");
+      return false;
+    }
+    enqueue(std::move(line));
+    return true;
+  }
+  bool open() const override { return !closing_; }
+
+ private:
+  void enqueue(std::string line) {
+    line.push_back('\n');
+    queued_bytes_ += line.size();
+    out_.push_back(std::move(line));
+    if (!writing_) {
+      writing_ = true;
+      asio::co_spawn(socket_.get_executor(), write_loop(this->shared_from_this()), asio::detached);
+    }
+  }
+
+  void cut_off(const std::string& why) {
+    if (closing_) return;
+    was_cut_off_ = true;
+    out_.clear();
+    queued_bytes_ = 0;
+    enqueue(nlohmann::json{{"jsonrpc", "2.0"},
+                           {"method", "cut_off"},
+                           {"params", {{"code", rpc_error::cut_off}, {"message", why}}}}
+                .dump());
+    closing_ = true;
+    grace_.expires_after(std::chrono::seconds(2));
+    grace_.async_wait([self = this->shared_from_this()](const boost::system::error_code& ec) {
+      if (!ec) self->close();
+    });
+    drained_.cancel();
+  }
+
+  void close() {
+    boost::system::error_code ec;
+    socket_.shutdown(asio::socket_base::shutdown_both, ec);
+    socket_.close(ec);
+    grace_.cancel();
+    drained_.cancel();
+    if (!finished_) {
+      finished_ = true;
+      done_(this, was_cut_off_);
+    }
+  }
+
+  static asio::awaitable<void> write_loop(std::shared_ptr<Connection> self) {
+    boost::system::error_code ec;
+    while (!self->out_.empty()) {
+      std::string line = std::move(self->out_.front());
+      self->out_.pop_front();
+      co_await asio::async_write(self->socket_, asio::buffer(line), asio::redirect_error(asio::use_awaitable, ec));
+      self->queued_bytes_ -= std::min(self->queued_bytes_, line.size());
+      if (ec) break;
+      if (self->queued_bytes_ <= self->limits_.max_queued_bytes / 2) self->drained_.cancel();
+    }
+    self->writing_ = false;
+    if (ec || self->closing_) self->close();
+  }
+
+  static asio::awaitable<void> read_loop(std::shared_ptr<Connection> self) {
+    boost::system::error_code ec;
+    std::string line;
+    bool discarding = false;  // inside an oversize line: drop until its newline
+    std::array<char, 8192> chunk;
+    while (!self->closing_) {
+      const std::size_t n =
+          co_await self->socket_.async_read_some(asio::buffer(chunk), asio::redirect_error(asio::use_awaitable, ec));
+      if (ec) break;
+      std::size_t at = 0;
+      while (at < n && !self->closing_) {
+        const char* begin = chunk.data() + at;
+        const char* nl = static_cast<const char*>(std::memchr(begin, '\n', n - at));
+        const std::size_t take = nl ? std::size_t(nl - begin) : n - at;
+        at += take + (nl ? 1 : 0);
+        if (!discarding) {
+          if (line.size() + take > self->limits_.max_request_bytes) {
+            discarding = true;
+            line.clear();
+          } else {
+            line.append(begin, take);
+          }
+        }
+        if (!nl) continue;
+        if (discarding) {
+          discarding = false;
+          self->enqueue(error_reply(nullptr, rpc_error::invalid_request,
+                                    "Invalid Request: line longer than " + std::to_string(self->limits_.max_request_bytes) +
+                                        " bytes")
+                            .dump());
+        } else {
+          if (!line.empty() && line.back() == '\r') line.pop_back();
+          if (line.find_first_not_of(" \t") != std::string::npos) {
+            auto r = self->methods_.handle_line(line, self->peer_);
+            if (r) self->enqueue(std::move(*r));
+            if (self->peer_.close_after_reply) {
+              self->closing_ = true;
+              if (!self->writing_) self->close();
+            }
+          }
+          line.clear();
+        }
+        // Back-pressure: a client that does not read its replies stops being read.
+        while (!self->closing_ && self->queued_bytes_ > self->limits_.max_queued_bytes) {
+          self->drained_.expires_after(std::chrono::hours(24));
+          co_await self->drained_.async_wait(asio::redirect_error(asio::use_awaitable, ec));
+          ec = {};
+        }
+      }
+    }
+    // The peer stopped sending: finish writing what it asked for, within a grace.
+    self->closing_ = true;
+    if (!self->writing_) {
+      self->close();
+    } else if (!self->was_cut_off_) {
+      self->grace_.expires_after(std::chrono::seconds(10));
+      self->grace_.async_wait([self](const boost::system::error_code& e) {
+        if (!e) self->close();
+      });
+    }
+  }
+
+  Socket socket_;
+  ConnectionLimits limits_;
+  Methods& methods_;
+  Done done_;
+  Peer peer_;
+  asio::steady_timer drained_;
+  asio::steady_timer grace_;
+  std::deque<std::string> out_;
+  std::size_t queued_bytes_ = 0;
+  bool writing_ = false;
+  bool closing_ = false;
+  bool finished_ = false;
+  bool was_cut_off_ = false;
+};
+
+}  // namespace accrue::daemon::api

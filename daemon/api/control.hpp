@@ -1,0 +1,33 @@
+#pragma once
+// Control is what the API may ask of the board and the chain: discharge the
+// integrator now, open or close a zero window, and mark an interval the user
+// knows was quiet. The daemon's main wires it to the link (see main.cpp); the
+// API only validates parameters and reports what the implementation says.
+// Implementations run on the Asio thread and must not block.
+#include <cstdint>
+#include <optional>
+#include <string>
+
+#include <nlohmann/json.hpp>
+
+namespace accrue::daemon::api {
+
+struct ControlResult {
+  bool ok = false;
+  std::string message;                         // why, when !ok
+  nlohmann::json detail = nlohmann::json::object();  // what was done, when ok
+};
+
+class Control {
+ public:
+  virtual ~Control() = default;
+  // Discharges every channel's integrator now (the protocol's reset is board-wide).
+  virtual ControlResult reset_now() = 0;
+  // start = true closes the zero relay (input shorted), false opens it.
+  virtual ControlResult zero_window(bool start) = 0;
+  // Records [from_index, to_index] of the active run as a quiet interval.
+  virtual ControlResult mark_quiet(std::optional<int> channel, std::uint64_t from_index, std::uint64_t to_index,
+                                   const std::string& note) = 0;
+};
+
+}  // namespace accrue::daemon::api

@@ -1,0 +1,229 @@
+#include "daemon/api/store_queries.hpp"
+
+#include <algorithm>
+#include <climits>
+#include <functional>
+
+namespace accrue::daemon::api {
+
+using storage::Statement;
+using storage::Status;
+
+namespace {
+std::int64_t clamp64(std::uint64_t v) { return std::int64_t(std::min<std::uint64_t>(v, INT64_MAX)); }
+
+Status each_row(Statement& st, const std::function<void(const Statement&)>& f) {
+  for (bool row = true;;) {
+    if (Status s = st.step(&row); !s.ok()) return s;
+    if (!row) return Status::success();
+    f(st);
+  }
+}
+}  // namespace
+
+Status StoreQueries::open(const std::string& path, std::unique_ptr<StoreQueries>& out) {
+  std::unique_ptr<storage::Database> db;
+  if (Status s = storage::Database::open(path, storage::Database::Mode::read_only, db); !s.ok()) return s;
+  out.reset(new StoreQueries(std::move(db)));
+  return Status::success();
+}
+
+Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t from_index, std::uint64_t to_index,
+                                 std::size_t max_points, std::size_t page_points, std::uint64_t bucket_samples,
+                                 std::optional<std::uint64_t> start, WindowPage& out) {
+  out = WindowPage{};
+  std::uint64_t count = 0;
+  {
+    Statement st;
+    if (Status s = db_->prepare(
+            "SELECT MIN(first_index), MAX(first_index), COUNT(*) FROM series_point"
+            " WHERE run_id = ? AND channel = ? AND first_index BETWEEN ? AND ?",
+            st);
+        !s.ok())
+      return s;
+    st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(from_index)).bind(4, clamp64(to_index));
+    bool row = false;
+    if (Status s = st.step(&row); !s.ok()) return s;
+    if (!row || st.column_int(2) == 0) return Status::success();
+    out.lo = std::uint64_t(st.column_int(0));
+    out.hi = std::uint64_t(st.column_int(1));
+    count = std::uint64_t(st.column_int(2));
+  }
+  out.empty = false;
+  const std::uint64_t span = out.hi - out.lo + 1;
+  // Buckets hold whole series points: a multiple of the points' stride.
+  const std::uint64_t stride = count > 1 ? std::max<std::uint64_t>(1, (out.hi - out.lo) / (count - 1)) : 1;
+  const std::uint64_t wanted = (span + max_points - 1) / std::max<std::size_t>(1, max_points);
+  out.bucket_samples = bucket_samples > 0 ? bucket_samples : std::max<std::uint64_t>(1, (wanted + stride - 1) / stride) * stride;
+  const std::uint64_t begin = std::max(out.lo, start.value_or(out.lo));
+  // The page covers whole buckets: [begin, page_end].
+  const std::uint64_t first_bucket = (begin - out.lo) / out.bucket_samples;
+  const std::uint64_t page_begin = out.lo + first_bucket * out.bucket_samples;
+  const std::uint64_t page_end_unclamped = page_begin + std::uint64_t(page_points) * out.bucket_samples - 1;
+  const std::uint64_t page_end = std::min(out.hi, page_end_unclamped);
+  if (page_end < out.hi) out.next_start = page_end + 1;
+
+  // The total just before the page, so the first bucket's increase is right.
+  double before = 0.0;
+  bool have_before = false;
+  {
+    Statement st;
+    if (Status s = db_->prepare(
+            "SELECT total FROM series_point WHERE run_id = ? AND channel = ? AND first_index < ?"
+            " ORDER BY first_index DESC LIMIT 1",
+            st);
+        !s.ok())
+      return s;
+    st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(page_begin));
+    bool row = false;
+    if (Status s = st.step(&row); !s.ok()) return s;
+    if (row) before = st.column_double(0), have_before = true;
+  }
+  Statement st;
+  if (Status s = db_->prepare(
+          "SELECT p.first_index, p.samples, p.min_v, p.max_v, p.mean_v, p.last_v, p.total, p.total_u, c.quantity, c.unit"
+          " FROM series_point p JOIN calibration c USING (calibration_id)"
+          " WHERE p.run_id = ? AND p.channel = ? AND p.first_index BETWEEN ? AND ? ORDER BY p.first_index",
+          st);
+      !s.ok())
+    return s;
+  st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(page_begin)).bind(4, clamp64(page_end));
+  double weighted = 0.0;
+  std::uint64_t current = UINT64_MAX;
+  const Status rows = each_row(st, [&](const Statement& r) {
+    const std::uint64_t index = std::uint64_t(r.column_int(0));
+    const std::uint64_t bucket = (index - out.lo) / out.bucket_samples;
+    const double total = r.column_double(6);
+    if (!have_before) before = total, have_before = true;  // the run's first point counts from itself
+    if (bucket != current) {
+      if (!out.buckets.empty()) {
+        Bucket& b = out.buckets.back();
+        b.mean_v = weighted / double(std::max<std::uint64_t>(1, b.samples));
+        before = b.total;
+      }
+      current = bucket;
+      Bucket b;
+      b.first_index = out.lo + bucket * out.bucket_samples;
+      b.min_v = r.column_double(2);
+      b.max_v = r.column_double(3);
+      out.buckets.push_back(b);
+      weighted = 0.0;
+      if (out.quantity.empty()) out.quantity = r.column_text(8), out.unit = r.column_text(9);
+    }
+    Bucket& b = out.buckets.back();
+    const auto samples = std::uint64_t(r.column_int(1));
+    b.samples += samples;
+    b.min_v = std::min(b.min_v, r.column_double(2));
+    b.max_v = std::max(b.max_v, r.column_double(3));
+    weighted += r.column_double(4) * double(samples);
+    b.last_v = r.column_double(5);
+    b.total = total;
+    b.total_u = r.column_double(7);
+    b.delta = total - before;
+  });
+  if (!rows.ok()) return rows;
+  if (!out.buckets.empty())
+    out.buckets.back().mean_v = weighted / double(std::max<std::uint64_t>(1, out.buckets.back().samples));
+  return Status::success();
+}
+
+Status StoreQueries::segments(std::int64_t run_id, int channel, std::uint64_t from_index, std::uint64_t to_index,
+                              std::int64_t after_ordinal, std::size_t limit, std::vector<SegmentRow>& out) {
+  out.clear();
+  Statement st;
+  if (Status s = db_->prepare(
+          "SELECT ordinal, first_index, last_index, start_v, end_v, drift_v, gap_before_v, gap_before_u_v,"
+          " end_points_u_v, quantity, baseline_ordinal, flags, total_after, total_u_after, calibration_id FROM segment"
+          " WHERE run_id = ? AND channel = ? AND last_index >= ? AND first_index <= ? AND ordinal > ?"
+          " ORDER BY ordinal LIMIT ?",
+          st);
+      !s.ok())
+    return s;
+  st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(from_index)).bind(4, clamp64(to_index));
+  st.bind(5, after_ordinal).bind(6, std::int64_t(limit));
+  return each_row(st, [&](const Statement& r) {
+    SegmentRow s;
+    s.ordinal = r.column_int(0);
+    s.first_index = std::uint64_t(r.column_int(1));
+    s.last_index = std::uint64_t(r.column_int(2));
+    s.start_v = r.column_double(3);
+    s.end_v = r.column_double(4);
+    s.drift_v = r.column_double(5);
+    s.gap_before_v = r.column_double(6);
+    s.gap_before_u_v = r.column_double(7);
+    s.end_points_u_v = r.column_double(8);
+    s.quantity = r.column_double(9);
+    s.baseline_ordinal = r.column_int(10);
+    s.flags = r.column_int(11);
+    s.total_after = r.column_double(12);
+    s.total_u_after = r.column_double(13);
+    s.calibration_id = r.column_int(14);
+    out.push_back(s);
+  });
+}
+
+Status StoreQueries::events(const EventFilter& f, std::vector<EventOut>& out) {
+  out.clear();
+  std::string sql =
+      "SELECT event_id, run_id, channel, sample_index, kind, detail, host_utc FROM event WHERE event_id > ?";
+  if (f.run_id) sql += " AND run_id = ?";
+  if (f.channel) sql += " AND (channel = ? OR channel IS NULL)";
+  if (f.from_utc) sql += " AND host_utc >= ?";
+  if (f.to_utc) sql += " AND host_utc <= ?";
+  if (f.from_index) sql += " AND sample_index >= ?";
+  if (f.to_index) sql += " AND sample_index <= ?";
+  if (!f.kinds.empty()) {
+    sql += " AND kind IN (";
+    for (std::size_t i = 0; i < f.kinds.size(); ++i) sql += i ? ",?" : "?";
+    sql += ")";
+  }
+  sql += " ORDER BY event_id LIMIT ?";
+  Statement st;
+  if (Status s = db_->prepare(sql, st); !s.ok()) return s;
+  int at = 1;
+  st.bind(at++, f.after_id);
+  if (f.run_id) st.bind(at++, *f.run_id);
+  if (f.channel) st.bind(at++, std::int64_t(*f.channel));
+  if (f.from_utc) st.bind(at++, std::string_view(*f.from_utc));
+  if (f.to_utc) st.bind(at++, std::string_view(*f.to_utc));
+  if (f.from_index) st.bind(at++, clamp64(*f.from_index));
+  if (f.to_index) st.bind(at++, clamp64(*f.to_index));
+  for (const auto& k : f.kinds) st.bind(at++, std::string_view(k));
+  st.bind(at++, std::int64_t(f.limit));
+  return each_row(st, [&](const Statement& r) {
+    EventOut e;
+    e.event_id = r.column_int(0);
+    if (!r.column_is_null(1)) e.run_id = r.column_int(1);
+    if (!r.column_is_null(2)) e.channel = int(r.column_int(2));
+    if (!r.column_is_null(3)) e.sample_index = std::uint64_t(r.column_int(3));
+    e.kind = r.column_text(4);
+    e.detail = r.column_text(5);
+    e.host_utc = r.column_text(6);
+    out.push_back(std::move(e));
+  });
+}
+
+Status StoreQueries::calibrations(std::optional<int> channel, std::vector<CalibrationRow>& out) {
+  out.clear();
+  Statement st;
+  if (Status s = db_->prepare(
+          "SELECT calibration_id, channel, created_utc, quantity, unit, quantity_per_volt, definition FROM calibration"
+          " WHERE ? < 0 OR channel = ? ORDER BY channel, calibration_id",
+          st);
+      !s.ok())
+    return s;
+  st.bind(1, std::int64_t(channel.value_or(-1))).bind(2, std::int64_t(channel.value_or(-1)));
+  return each_row(st, [&](const Statement& r) {
+    CalibrationRow c;
+    c.calibration_id = r.column_int(0);
+    c.channel = int(r.column_int(1));
+    c.created_utc = r.column_text(2);
+    c.quantity = r.column_text(3);
+    c.unit = r.column_text(4);
+    c.quantity_per_volt = r.column_double(5);
+    c.definition = r.column_text(6);
+    out.push_back(std::move(c));
+  });
+}
+
+}  // namespace accrue::daemon::api
