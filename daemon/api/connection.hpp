@@ -7,7 +7,7 @@
 //   max_queued_bytes wait to be written (back-pressure on that client only);
 // - notifications: if the queue is over max_queued_bytes, the client is cut
 //   off: the queue is dropped, one "cut_off" error notification is queued
-//   and the socket closed after it is written or after a 2 s grace.
+//   and the socket closed after it is written or after a 10 s grace.
 // An oversize line gets an Invalid Request error and is skipped; the
 // connection carries on. Owned by shared_ptr from its coroutines; the Hub
 // holds it weakly. Asio thread only.
@@ -80,7 +80,7 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
                            {"params", {{"code", rpc_error::cut_off}, {"message", why}}}}
                 .dump());
     closing_ = true;
-    grace_.expires_after(std::chrono::seconds(2));
+    grace_.expires_after(std::chrono::seconds(10));
     grace_.async_wait([self = this->shared_from_this()](const boost::system::error_code& ec) {
       if (!ec) self->close();
     });

@@ -18,6 +18,12 @@ bool Hub::unsubscribe(const Sink* sink, std::int64_t id) {
   return true;
 }
 
+std::size_t Hub::subscriptions_of(const Sink* sink) const {
+  std::size_t n = 0;
+  for (const auto& [id, s] : subs_) n += s.owner == sink ? 1 : 0;
+  return n;
+}
+
 void Hub::drop(const Sink* sink) {
   for (auto it = subs_.begin(); it != subs_.end();) it = it->second.owner == sink ? subs_.erase(it) : std::next(it);
 }

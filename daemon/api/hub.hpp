@@ -37,6 +37,7 @@ class Hub {
   void publish_event(const nlohmann::json& event);
 
   std::size_t subscriptions() const { return subs_.size(); }
+  std::size_t subscriptions_of(const Sink* sink) const;
   const HubCounters& counters() const { return counters_; }
 
  private:

@@ -90,6 +90,7 @@ std::optional<std::string> time_bound(const json& params, const char* key, std::
   return storage::rfc3339_utc(*t);
 }
 
+constexpr std::size_t kMaxSubscriptionsPerClient = 64;
 const std::set<std::string> kSelects = {"all", "volts", "quantity", "total", "rate"};
 
 // Continuation of a window: everything the next page needs, as plain text.
@@ -594,6 +595,8 @@ json Methods::subscribe(const json& params, const json& id, Peer& peer) {
     }
   }
   if (!peer.sink_ptr) return error_reply(id, rpc_error::internal_error, "this connection cannot take notifications");
+  if (hub_.subscriptions_of(peer.sink_ptr) >= kMaxSubscriptionsPerClient)
+    return bad_params(id, "at most " + std::to_string(kMaxSubscriptionsPerClient) + " subscriptions per connection");
   const std::int64_t sub = hub_.subscribe(peer.sink, topics, std::move(channels));
   json names = json::array();
   if (topics & Hub::values) names.push_back("values");

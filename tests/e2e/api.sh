@@ -1,0 +1,33 @@
+#!/usr/bin/env bash
+# End to end for the JSON-RPC API (docs/api.md): every documented example,
+# malformed input of each kind, 64 concurrent clients while the simulator
+# streams at 500 times real time, a subscriber that stops reading, TCP
+# tokens, the socket's mode, the client's CSV export and SVG plot. The
+# scenario is the invented demo one, cut to two hours of board time.
+set -euo pipefail
+sim=$1 daemon=$2 client=$3
+here=$(cd "$(dirname "$0")" && pwd)
+work=$(mktemp -d /tmp/accrue-api.XXXXXX)
+pids=()
+cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; [ -n "${ACCRUE_KEEP_WORK:-}" ] || rm -rf "$work"; }
+trap cleanup EXIT
+
+# 500x real time (500 kS/s of board samples): long enough for the checks to run during the stream.
+"$sim" --set duration_s=7200 --set beam.stop_s=7100 --set zero_window_s=20 --set seed=6 --speed 500 \
+  --truth "$work/truth.json" --path-file "$work/pty" >"$work/sim.out" 2>"$work/sim.err" &
+pids+=($!)
+for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
+head -c 24 /dev/urandom | od -An -tx1 | tr -d ' \n' >"$work/token"
+cat >"$work/accrued.json" <<CONF
+{ "device": "$(cat "$work/pty")", "database": "$work/a.db", "socket": "$work/s.sock",
+  "commit_interval_ms": 50, "tcp_listen": "127.0.0.1:0", "tcp_token_file": "$work/token",
+  "api_max_clients": 80, "api_client_buffer_bytes": 65536 }
+CONF
+"$daemon" --config "$work/accrued.json" 2>"$work/daemon.err" &
+pids+=($!)
+for _ in $(seq 200); do grep -q "TCP port" "$work/daemon.err" 2>/dev/null && [ -S "$work/s.sock" ] && break; sleep 0.05; done
+port=$(sed -n 's/.*TCP port \([0-9]*\).*/\1/p' "$work/daemon.err" | head -1)
+
+/usr/bin/python3 "$here/api_check.py" --socket "$work/s.sock" --tcp-port "$port" --token-file "$work/token" \
+  --docs "$here/../../docs/api.md" --database "$work/a.db" --truth "$work/truth.json" --client "$client" \
+  --work "$work" || { echo "--- daemon log"; tail -20 "$work/daemon.err"; echo "--- simulator log"; tail -5 "$work/sim.err"; exit 1; }
