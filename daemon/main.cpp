@@ -308,7 +308,10 @@ int main(int argc, char** argv) {
     }
   }
   api::Hub hub;
-  api::LinkControl control(link, ingest, next_request_id);
+  // API control commands use their own request-id range (from 0x8000) until they
+  // go through BoardCommands' acks and retries like identify does.
+  std::uint16_t api_request_id = 0x8000;
+  api::LinkControl control(link, ingest, api_request_id);
   api::Server* server_ptr = nullptr;
   ingest.set_event_listener([&](const storage::EventRow& e) {
     if (hub.subscriptions() == 0) return;

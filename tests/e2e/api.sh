@@ -2,7 +2,7 @@
 # End to end for the JSON-RPC API (docs/api.md): every documented example,
 # malformed input of each kind, 64 concurrent clients while the simulator
 # streams at 500 times real time, a subscriber that stops reading, TCP
-# tokens, the socket's mode, the client's CSV export and SVG plot. The
+# tokens, the socket's mode. The
 # scenario is the invented demo one, cut to two hours of board time.
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
@@ -18,15 +18,17 @@ trap cleanup EXIT
 pids+=($!)
 for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
 head -c 24 /dev/urandom | od -An -tx1 | tr -d ' \n' >"$work/token"
+chmod 600 "$work/token"
+port=$(/usr/bin/python3 -c "import socket; s=socket.socket(); s.bind((\"127.0.0.1\", 0)); print(s.getsockname()[1])")
 cat >"$work/accrued.json" <<CONF
 { "device": "$(cat "$work/pty")", "database": "$work/a.db", "socket": "$work/s.sock",
-  "commit_interval_ms": 50, "tcp_listen": "127.0.0.1:0", "tcp_token_file": "$work/token",
+  "commit_interval_ms": 50, "tcp": {"address": "127.0.0.1", "port": $port, "token_file": "$work/token"},
   "api_max_clients": 80, "api_client_buffer_bytes": 65536 }
 CONF
 "$daemon" --config "$work/accrued.json" 2>"$work/daemon.err" &
 pids+=($!)
 for _ in $(seq 200); do grep -q "TCP port" "$work/daemon.err" 2>/dev/null && [ -S "$work/s.sock" ] && break; sleep 0.05; done
-port=$(sed -n 's/.*TCP port \([0-9]*\).*/\1/p' "$work/daemon.err" | head -1)
+
 
 /usr/bin/python3 "$here/api_check.py" --socket "$work/s.sock" --tcp-port "$port" --token-file "$work/token" \
   --docs "$here/../../docs/api.md" --database "$work/a.db" --truth "$work/truth.json" --client "$client" \
