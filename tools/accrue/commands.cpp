@@ -221,7 +221,7 @@ int cmd_compare(const CommonOptions& o, const std::vector<std::string>& args) {
                 ch.value("channel", 0), (long long)ch.value("run_id", 0), format_si(total, unit, 7).c_str(),
                 format_si(u2, unit, 2).c_str());
     std::printf("simulator truth:                          %s\n", format_si(true_total, unit, 7).c_str());
-    std::printf("relative error:                           %+.4f %%%s\n", rel(total),
+    std::printf("relative error:                           %+.2g %%%s\n", rel(total),
                 covered ? "  (within the stated uncertainty)" : "  (OUTSIDE the stated uncertainty)");
     std::printf("for contrast, plain uncorrected integration\n");
     std::printf("  (output change, no drift removal, no reset stitching): %s  (%+.2f %%)\n",
