@@ -2,7 +2,6 @@
 
 #include <cmath>
 
-#include "protocol/byte_order.hpp"
 
 namespace accrue::daemon {
 
@@ -218,11 +217,16 @@ void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
   for (std::size_t c = 0; c < run.chains.size(); ++c) {
     run.chains[c]->process(b.first_index, b.status, b.codes.data() + c, b.samples_per_channel, b.channel_count,
                            run.rows[c].output);
-    // Chain events (saturation, ...) become stored events; the chain's own list is emptied.
-    auto& events = run.rows[c].output.events;
-    for (auto& e : events) event(e.kind, std::move(e.detail), e.sample_index, int(c));
-    events.clear();
+    store_chain_events(run, c);
   }
+}
+
+void Ingest::store_chain_events(Run& run, std::size_t c) {
+  // Chain events (saturation, a rejected baseline, ...) become stored events;
+  // the chain's own list is emptied.
+  auto& events = run.rows[c].output.events;
+  for (auto& e : events) event(e.kind, std::move(e.detail), e.sample_index, int(c));
+  events.clear();
 }
 
 void Ingest::on_event(const protocol::BoardEvent& e, double receive_unix) {
@@ -240,6 +244,7 @@ void Ingest::end_run(const std::string& reason) {
   Run& run = *run_;
   for (std::size_t c = 0; c < run.chains.size(); ++c) {
     run.chains[c]->finish(run.rows[c].output);
+    store_chain_events(run, c);  // closing a zero window at the end can raise one too
     carried_[int(c)] = run.chains[c]->snapshot().state;
   }
   storage::RunEnd end;

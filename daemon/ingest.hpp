@@ -92,6 +92,7 @@ class Ingest {
   void on_identity(const protocol::BoardIdentity& id, double receive_unix);
   void on_block(const protocol::SampleBlock& b, double receive_unix);
   void on_event(const protocol::BoardEvent& e, double receive_unix);
+  void store_chain_events(Run& run, std::size_t channel);
   void start_run(const protocol::BoardIdentity& id, double receive_unix, std::optional<std::uint64_t> first_index);
   chain::Calibration calibration_for(int channel, const protocol::BoardIdentity& id) const;
   void event(std::string kind, std::string detail, std::optional<std::uint64_t> index = std::nullopt,
