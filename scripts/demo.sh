@@ -19,10 +19,10 @@ cleanup() {
 trap cleanup EXIT
 
 echo "accrue demo: simulating 8 hours of an invented overnight Faraday-cup run (1 kS/s, 100 pA spills, 1 nF)"
-"$build/tools/accrue-sim/accrue-sim" --truth "$work/truth.json" --path-file "$work/pty" >"$work/sim.out" 2>"$work/sim.log" &
+"$build/tools/accrue-sim/accrue-sim" --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.log" &
 sim_pid=$!
-for _ in $(seq 100); do [ -s "$work/pty" ] && break; sleep 0.05; done
-device=$(cat "$work/pty")
+for _ in $(seq 100); do [ -L "$work/board" ] && break; sleep 0.05; done
+device=$work/board
 "$build/daemon/accrued" --device "$device" --database "$work/accrue.db" --socket "$work/accrued.sock" \
   2>"$work/accrued.log" &
 daemon_pid=$!

@@ -14,14 +14,14 @@ trap cleanup EXIT
 
 # 500x real time (500 kS/s of board samples): long enough for the checks to run during the stream.
 "$sim" --set duration_s=7200 --set beam.stop_s=7100 --set zero_window_s=20 --set seed=6 --speed 500 \
-  --truth "$work/truth.json" --path-file "$work/pty" >"$work/sim.out" 2>"$work/sim.err" &
+  --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
+for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
 head -c 24 /dev/urandom | od -An -tx1 | tr -d ' \n' >"$work/token"
 chmod 600 "$work/token"
 port=$(/usr/bin/python3 -c "import socket; s=socket.socket(); s.bind((\"127.0.0.1\", 0)); print(s.getsockname()[1])")
 cat >"$work/accrued.json" <<CONF
-{ "device": "$(cat "$work/pty")", "database": "$work/a.db", "socket": "$work/s.sock",
+{ "device": "$work/board", "database": "$work/a.db", "socket": "$work/s.sock",
   "commit_interval_ms": 50, "tcp": {"address": "127.0.0.1", "port": $port, "token_file": "$work/token"},
   "api_max_clients": 80, "api_client_buffer_bytes": 65536 }
 CONF

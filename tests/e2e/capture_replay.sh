@@ -8,10 +8,10 @@ pids=()
 cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
 trap cleanup EXIT
 "$sim" --set duration_s=600 --set beam.stop_s=560 --set beam.current_a=5e-10 --set seed=5 --truth "$work/truth.json" \
-  --path-file "$work/pty" >/dev/null 2>&1 &
+  --link "$work/board" >/dev/null 2>&1 &
 pids+=($!)
-for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
-"$daemon" --device "$(cat "$work/pty")" --database "$work/live.db" --socket "$work/s.sock" --record "$work/run.capture" \
+for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+"$daemon" --device "$work/board" --database "$work/live.db" --socket "$work/s.sock" --record "$work/run.capture" \
   2>"$work/live.err" &
 live=$!
 pids+=($live)

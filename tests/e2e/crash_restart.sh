@@ -15,12 +15,12 @@ cleanup() { for p in "${pids[@]}"; do kill -9 "$p" 2>/dev/null || true; done; wa
 trap cleanup EXIT
 RANDOM=42  # seeded: the kill moments repeat from run to run
 "$sim" --set duration_s=$(( kills * 600 + 600 )) --set zero_window_s=10 \
-  --set beam.start_s=15 --set beam.current_a=4e-10 --speed 20 --truth "$work/truth.json" --path-file "$work/pty" \
+  --set beam.start_s=15 --set beam.current_a=4e-10 --speed 20 --truth "$work/truth.json" --link "$work/board" \
   >/dev/null 2>&1 &
 sim_pid=$!
 pids+=($sim_pid)
-for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
-dev=$(cat "$work/pty")
+for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+dev=$work/board
 start_daemon() {
   rm -f "$work/s.sock"
   "$daemon" --device "$dev" --database "$work/a.db" --socket "$work/s.sock" 2>>"$work/daemon.err" &

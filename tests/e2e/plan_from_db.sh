@@ -12,11 +12,11 @@ pids=()
 cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
 trap cleanup EXIT
 
-"$sim" --set duration_s=1200 --set beam.stop_s=1150 --set seed=5 --truth "$work/truth.json" --path-file "$work/pty" \
+"$sim" --set duration_s=1200 --set beam.stop_s=1150 --set seed=5 --truth "$work/truth.json" --link "$work/board" \
   >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
-"$daemon" --device "$(cat "$work/pty")" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
+for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+"$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
 pids+=($!)
 for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null

@@ -12,16 +12,16 @@ cleanup() { for p in "${pids[@]}"; do kill -9 "$p" 2>/dev/null || true; done; wa
 trap cleanup EXIT
 wait_for() { for _ in $(seq 400); do eval "$1" && return 0; sleep 0.05; done; echo "timed out: $1"; exit 1; }
 
-"$sim" --set duration_s=600 --speed 1 --path-file "$work/pty" --truth "$work/truth.json" >/dev/null 2>"$work/sim.err" &
+"$sim" --set duration_s=600 --speed 1 --link "$work/board" --truth "$work/truth.json" >/dev/null 2>"$work/sim.err" &
 pids+=($!)
-wait_for '[ -s "$work/pty" ]'
+wait_for '[ -L "$work/board" ]'
 /usr/bin/python3 "$helper" "$work/notify.sock" "$work/notify.log" &
 pids+=($!)
 wait_for '[ -S "$work/notify.sock" ]'
 
 # WATCHDOG_USEC as systemd sets it for WatchdogSec=0.4s: keep-alives every 0.2 s.
 NOTIFY_SOCKET=$work/notify.sock WATCHDOG_USEC=400000 \
-  "$daemon" --device "$(cat "$work/pty")" --database "$work/a.db" --socket "$work/s.sock" \
+  "$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" \
   --test-hang-on-sigusr2 2>"$work/daemon.err" &
 dpid=$!
 pids+=($dpid)

@@ -12,14 +12,14 @@ trap cleanup EXIT
 wait_for() { for _ in $(seq 600); do eval "$1" && return 0; sleep 0.05; done; echo "timed out: $1"; cat "$work/daemon.err"; exit 1; }
 versions() { /usr/bin/python3 -c 'import sqlite3,sys; print(sqlite3.connect(f"file:{sys.argv[1]}?mode=ro", uri=True).execute("SELECT COUNT(*) FROM calibration WHERE channel = 0").fetchone()[0])' "$work/a.db"; }
 
-"$sim" --set duration_s=3600 --speed 20 --path-file "$work/pty" --truth "$work/truth.json" >/dev/null 2>"$work/sim.err" &
+"$sim" --set duration_s=3600 --speed 20 --link "$work/board" --truth "$work/truth.json" >/dev/null 2>"$work/sim.err" &
 pids+=($!)
-wait_for '[ -s "$work/pty" ]'
+wait_for '[ -L "$work/board" ]'
 cat >"$work/board.json" <<JSON
 // invented test board
 { "log_level": "info", "channels": [ { "channel": 0, "c_farad": 1e-9 } ] }
 JSON
-"$daemon" --config "$work/board.json" --device "$(cat "$work/pty")" --database "$work/a.db" --socket "$work/s.sock" \
+"$daemon" --config "$work/board.json" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" \
   2>"$work/daemon.err" &
 dpid=$!
 pids+=($dpid)

@@ -11,11 +11,11 @@ cleanup() { for p in "${pids[@]}"; do kill -9 "$p" 2>/dev/null || true; done; wa
 trap cleanup EXIT
 wait_for() { for _ in $(seq 600); do eval "$1" && return 0; sleep 0.05; done; echo "timed out: $1"; exit 1; }
 
-"$sim" --set duration_s=36000 --set seed=5 --path-file "$work/pty" --truth "$work/truth.json" --linger-s 1 \
+"$sim" --set duration_s=36000 --set seed=5 --link "$work/board" --truth "$work/truth.json" --linger-s 1 \
   >/dev/null 2>"$work/sim.err" &
 pids+=($!)
-wait_for '[ -s "$work/pty" ]'
-"$daemon" --device "$(cat "$work/pty")" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
+wait_for '[ -L "$work/board" ]'
+"$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
 dpid=$!
 pids+=($dpid)
 wait_for '[ -S "$work/s.sock" ]'

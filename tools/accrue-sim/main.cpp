@@ -1,6 +1,9 @@
 // accrue-sim: a simulated integrator board on a pseudo-terminal.
 #include <poll.h>
+#include <sys/stat.h>
 #include <unistd.h>
+
+#include <csignal>
 
 #include <cerrno>
 #include <chrono>
@@ -21,6 +24,44 @@ namespace {
 
 using namespace accrue;
 
+// Set by SIGTERM/SIGINT so the simulator ends like a finished run: the link is
+// removed before the terminal closes. A signal handler can only reach a flag
+// of static storage; nothing else in the program is global.
+volatile std::sig_atomic_t g_stop_requested = 0;
+void request_stop(int) { g_stop_requested = 1; }
+
+// The symbolic link of --link, owned for the process's lifetime.
+class DeviceLink {
+ public:
+  DeviceLink() = default;
+  ~DeviceLink() { remove(); }
+  DeviceLink(const DeviceLink&) = delete;
+  DeviceLink& operator=(const DeviceLink&) = delete;
+  bool create(const std::string& link_path, const std::string& target, std::string& why) {
+    struct stat st {};
+    if (::lstat(link_path.c_str(), &st) == 0) {
+      if (!S_ISLNK(st.st_mode)) {
+        why = link_path + " exists and is not a symbolic link";
+        return false;
+      }
+      ::unlink(link_path.c_str());
+    }
+    if (::symlink(target.c_str(), link_path.c_str()) != 0) {
+      why = "cannot create " + link_path + ": " + std::strerror(errno);
+      return false;
+    }
+    path_ = link_path;
+    return true;
+  }
+  void remove() {
+    if (!path_.empty()) ::unlink(path_.c_str());
+    path_.clear();
+  }
+
+ private:
+  std::string path_;
+};
+
 constexpr const char* kUsage = R"(usage: accrue-sim [options]
 
 Simulates an integrator board (charge amplifier, drift, resets, ADC) playing an
@@ -35,6 +76,10 @@ options:
   --speed X             board time per wall time (default 0: as fast as the reader takes it)
   --truth FILE          write the truth JSON here (default: stdout, after the path line)
   --path-file FILE      also write the pseudo-terminal path to FILE
+  --link PATH           make PATH a symbolic link to the pseudo-terminal, removed
+                        again before the simulator closes it; a reader that keeps
+                        reopening PATH then finds nothing instead of a later
+                        simulator's terminal that reuses the same /dev/pts number
   --linger-s S          wait at most S seconds for the reader to drain before closing (default 60)
   --print-scenario      print the scenario as JSON and exit
   --help                this text
@@ -65,6 +110,7 @@ bool write_all(int fd, const std::uint8_t* data, std::size_t n, sim::BoardModel&
   std::vector<protocol::Message> commands;
   std::uint8_t in[4096];
   while (done < n) {
+    if (g_stop_requested) return true;
     pollfd p{fd, POLLOUT | POLLIN, 0};
     if (::poll(&p, 1, 1000) < 0 && errno != EINTR) return false;
     if (p.revents & POLLIN) {
@@ -91,7 +137,7 @@ int main(int argc, char** argv) {
   sim::Scenario scenario;
   nlohmann::json overrides = nlohmann::json::object();
   double speed = 0.0, linger_s = 60.0;
-  std::string truth_path, path_file;
+  std::string truth_path, path_file, link_path;
   bool print_scenario = false;
   for (int i = 1; i < argc; ++i) {
     const std::string a = argv[i];
@@ -125,6 +171,8 @@ int main(int argc, char** argv) {
       truth_path = value();
     } else if (a == "--path-file") {
       path_file = value();
+    } else if (a == "--link") {
+      link_path = value();
     } else if (a == "--linger-s") {
       linger_s = std::atof(value().c_str());
     } else if (a == "--print-scenario") {
@@ -149,6 +197,13 @@ int main(int argc, char** argv) {
     std::fprintf(stderr, "accrue-sim: %s\n", why.c_str());
     return 1;
   }
+  DeviceLink link;  // declared after pty: on any return it goes before the terminal closes
+  if (!link_path.empty() && !link.create(link_path, pty.slave_path(), why)) {
+    std::fprintf(stderr, "accrue-sim: --link: %s\n", why.c_str());
+    return 1;
+  }
+  std::signal(SIGTERM, request_stop);
+  std::signal(SIGINT, request_stop);
   std::printf("%s\n", pty.slave_path().c_str());
   std::fflush(stdout);
   if (!path_file.empty()) {
@@ -167,12 +222,15 @@ int main(int argc, char** argv) {
     out.insert(out.end(), replies.begin(), replies.end());
     replies.clear();
     ok = write_all(pty.master_fd(), out.data(), out.size(), board, decoder, replies);
-    if (!more) break;
+    if (!more || g_stop_requested) break;
     if (speed > 0) {
       const double board_s = double(board.next_index()) * scenario.sample_period_s;
       const auto due = wall_start + std::chrono::duration_cast<std::chrono::steady_clock::duration>(
                                         std::chrono::duration<double>(board_s / speed));
-      std::this_thread::sleep_until(due);
+      // Short naps so a stop request is honoured within 50 ms even at slow speeds.
+      while (!g_stop_requested && std::chrono::steady_clock::now() < due)
+        std::this_thread::sleep_for(std::min<std::chrono::steady_clock::duration>(
+            due - std::chrono::steady_clock::now(), std::chrono::milliseconds(50)));
     }
   }
   if (!replies.empty()) write_all(pty.master_fd(), replies.data(), replies.size(), board, decoder, replies);
@@ -196,7 +254,7 @@ int main(int argc, char** argv) {
       {"reset_s", scenario.front_end.reset_s},
       {"adc_lsb_v", scenario.adc.full_scale_v / std::ldexp(1.0, scenario.adc.bits - 1)},
       {"max_input_current_a", scenario.beam.current_a * (1.0 + std::fabs(scenario.beam.modulation))},
-      {"complete", ok},
+      {"complete", ok && !g_stop_requested},
   };
   if (truth_path.empty()) {
     std::cout << truth.dump() << "\n";
@@ -209,9 +267,10 @@ int main(int argc, char** argv) {
   }
   // Let the reader drain what is still queued before the cable is "pulled".
   const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(linger_s);
-  while (pty.unread_bytes() > 0 && std::chrono::steady_clock::now() < deadline)
+  while (!g_stop_requested && pty.unread_bytes() > 0 && std::chrono::steady_clock::now() < deadline)
     std::this_thread::sleep_for(std::chrono::milliseconds(20));
-  std::this_thread::sleep_for(std::chrono::milliseconds(100));
+  if (!g_stop_requested) std::this_thread::sleep_for(std::chrono::milliseconds(100));
+  link.remove();
   pty.close();
   if (!ok) {
     std::fprintf(stderr, "accrue-sim: writing to the pseudo-terminal failed: %s\n", std::strerror(errno));

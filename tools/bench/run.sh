@@ -21,13 +21,13 @@ rate=${ACCRUE_BENCH_RATE:-1000000}
 
 run_daemon() {  # $1 = samples, $2 = speed (0 = unpaced); prints "wall_s cpu_s db_bytes shed"
   local samples=$1 speed=$2
-  rm -f "$work"/e2e.* "$work/pty"
+  rm -f "$work"/e2e.* "$work/board"
   "$sim" --set duration_s="$(( samples / 1000 ))" --set beam.stop_s="$(( samples / 1000 - 60 ))" \
-    --set samples_per_block=1000 --speed "$speed" --truth "$work/e2e.truth" --path-file "$work/pty" >/dev/null 2>&1 &
+    --set samples_per_block=1000 --speed "$speed" --truth "$work/e2e.truth" --link "$work/board" >/dev/null 2>&1 &
   local sim_pid=$!
-  for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
+  for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
   local t0; t0=$(date +%s.%N)
-  "$daemon" --device "$(cat "$work/pty")" --database "$work/e2e.db" --socket "$work/e2e.sock" 2>/dev/null &
+  "$daemon" --device "$work/board" --database "$work/e2e.db" --socket "$work/e2e.sock" 2>/dev/null &
   local d_pid=$!
   for _ in $(seq 200); do [ -S "$work/e2e.sock" ] && break; sleep 0.05; done
   "$client" --socket "$work/e2e.sock" wait --timeout 900 >/dev/null
@@ -45,11 +45,11 @@ fast_samples=${ACCRUE_BENCH_FAST_SAMPLES:-28800000}
 read -r f_wall f_cpu f_bytes f_shed < <(run_daemon "$fast_samples" 0)
 
 naive_samples=${ACCRUE_BENCH_NAIVE_SAMPLES:-600000}
-rm -f "$work/pty" "$work/naive.db"*
+rm -f "$work/board" "$work/naive.db"*
 "$sim" --set duration_s="$(( naive_samples / 1000 ))" --set samples_per_block=1000 --truth "$work/naive.truth" \
-  --path-file "$work/pty" >/dev/null 2>&1 &
-for _ in $(seq 200); do [ -s "$work/pty" ] && break; sleep 0.05; done
-read -r n_seen n_wall < <("$top/tools/bench/naive_logger.py" "$(cat "$work/pty")" "$work/naive.db" "$naive_samples")
+  --link "$work/board" >/dev/null 2>&1 &
+for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+read -r n_seen n_wall < <("$top/tools/bench/naive_logger.py" "$work/board" "$work/naive.db" "$naive_samples")
 wait || true
 n_bytes=$(( $(stat -c %s "$work/naive.db") + $(stat -c %s "$work/naive.db-wal" 2>/dev/null || echo 0) ))
 
