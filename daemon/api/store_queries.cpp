@@ -4,6 +4,8 @@
 #include <climits>
 #include <functional>
 
+#include "storage/rollup.hpp"
+
 namespace accrue::daemon::api {
 
 using storage::Statement;
@@ -28,40 +30,94 @@ Status StoreQueries::open(const std::string& path, std::unique_ptr<StoreQueries>
   return Status::success();
 }
 
+namespace {
+// One index seek: the first (or last) series point of the channel in [from, to].
+Status seek_point(storage::Database& db, const char* sql, std::int64_t run_id, int channel, std::uint64_t from_index,
+                  std::uint64_t to_index, std::optional<std::uint64_t>& index, std::uint64_t& samples) {
+  Statement st;
+  if (Status s = db.prepare(sql, st); !s.ok()) return s;
+  st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(from_index)).bind(4, clamp64(to_index));
+  bool row = false;
+  if (Status s = st.step(&row); !s.ok()) return s;
+  if (row) index = std::uint64_t(st.column_int(0)), samples = std::uint64_t(st.column_int(1));
+  return Status::success();
+}
+
+// The coarsest rollup tier whose buckets tile `bucket_samples` exactly and are
+// whole series points; 0: read the series points themselves.
+std::uint64_t tier_for(std::uint64_t bucket_samples, std::uint64_t stride, double sample_period_s,
+                       std::int64_t& width_s) {
+  width_s = 0;
+  std::uint64_t best = 0;
+  for (const std::int64_t w_s : storage::rollup::kWidthsS) {
+    const std::uint64_t w = storage::rollup::width_samples(w_s, sample_period_s);
+    if (w <= bucket_samples && bucket_samples % w == 0 && w % stride == 0 && w > stride) best = w, width_s = w_s;
+  }
+  return best;
+}
+}  // namespace
+
 Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t from_index, std::uint64_t to_index,
                                  std::size_t max_points, std::size_t page_points, std::uint64_t bucket_samples,
                                  std::optional<std::uint64_t> start, WindowPage& out) {
   out = WindowPage{};
-  std::uint64_t count = 0;
+  double period_s = 0.0;
   {
     Statement st;
-    if (Status s = db_->prepare(
-            "SELECT MIN(first_index), MAX(first_index), COUNT(*) FROM series_point"
-            " WHERE run_id = ? AND channel = ? AND first_index BETWEEN ? AND ?",
-            st);
-        !s.ok())
-      return s;
-    st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(from_index)).bind(4, clamp64(to_index));
+    if (Status s = db_->prepare("SELECT sample_period_s FROM run WHERE run_id = ?", st); !s.ok()) return s;
+    st.bind(1, run_id);
     bool row = false;
     if (Status s = st.step(&row); !s.ok()) return s;
-    if (!row || st.column_int(2) == 0) return Status::success();
-    out.lo = std::uint64_t(st.column_int(0));
-    out.hi = std::uint64_t(st.column_int(1));
-    count = std::uint64_t(st.column_int(2));
+    if (!row) return Status::error(SQLITE_NOTFOUND, "no such run");
+    period_s = st.column_double(0);
   }
+  // The data's extent by two index seeks, so the cost never depends on the span.
+  std::optional<std::uint64_t> lo, hi;
+  std::uint64_t stride = 1, last_samples = 1;
+  if (Status s = seek_point(*db_,
+                            "SELECT first_index, samples FROM series_point WHERE run_id = ? AND channel = ?"
+                            " AND first_index BETWEEN ? AND ? ORDER BY first_index LIMIT 1",
+                            run_id, channel, from_index, to_index, lo, stride);
+      !s.ok())
+    return s;
+  if (Status s = seek_point(*db_,
+                            "SELECT first_index, samples FROM series_point WHERE run_id = ? AND channel = ?"
+                            " AND first_index BETWEEN ? AND ? ORDER BY first_index DESC LIMIT 1",
+                            run_id, channel, from_index, to_index, hi, last_samples);
+      !s.ok())
+    return s;
+  if (!lo || !hi) return Status::success();
   out.empty = false;
-  const std::uint64_t span = out.hi - out.lo + 1;
-  // Buckets hold whole series points: a multiple of the points' stride.
-  const std::uint64_t stride = count > 1 ? std::max<std::uint64_t>(1, (out.hi - out.lo) / (count - 1)) : 1;
-  const std::uint64_t wanted = (span + max_points - 1) / std::max<std::size_t>(1, max_points);
-  out.bucket_samples = bucket_samples > 0 ? bucket_samples : std::max<std::uint64_t>(1, (wanted + stride - 1) / stride) * stride;
-  const std::uint64_t begin = std::max(out.lo, start.value_or(out.lo));
-  // The page covers whole buckets: [begin, page_end].
-  const std::uint64_t first_bucket = (begin - out.lo) / out.bucket_samples;
-  const std::uint64_t page_begin = out.lo + first_bucket * out.bucket_samples;
-  const std::uint64_t page_end_unclamped = page_begin + std::uint64_t(page_points) * out.bucket_samples - 1;
-  const std::uint64_t page_end = std::min(out.hi, page_end_unclamped);
-  if (page_end < out.hi) out.next_start = page_end + 1;
+  out.lo = *lo;
+  out.hi = *hi;
+  stride = std::max<std::uint64_t>(1, stride);
+  std::int64_t width_s = 0;
+  std::uint64_t tier = 0;
+  if (bucket_samples > 0) {
+    out.bucket_samples = bucket_samples;
+    tier = tier_for(bucket_samples, stride, period_s, width_s);
+  } else {
+    // Buckets are whole tier buckets (or whole series points), aligned to
+    // multiples of their size in the run's index, and at most max_points of
+    // them overlap [lo, hi].
+    const std::uint64_t span = out.hi - out.lo + 1;
+    const std::uint64_t wanted = std::max<std::uint64_t>(1, (span + max_points - 1) / std::max<std::size_t>(1, max_points));
+    std::uint64_t unit = stride;
+    for (const std::int64_t w_s : storage::rollup::kWidthsS) {
+      const std::uint64_t w = storage::rollup::width_samples(w_s, period_s);
+      if (w <= wanted && w % stride == 0) unit = std::max(unit, w);
+    }
+    std::uint64_t b = (wanted + unit - 1) / unit * unit;
+    while (out.hi / b - out.lo / b + 1 > max_points) b += unit;
+    out.bucket_samples = b;
+    tier = tier_for(b, stride, period_s, width_s);
+  }
+  const std::uint64_t B = out.bucket_samples;
+  const std::uint64_t first_bucket = std::max(out.lo, start.value_or(out.lo)) / B;
+  const std::uint64_t last_bucket = std::min(out.hi / B, first_bucket + page_points - 1);
+  if (last_bucket < out.hi / B) out.next_start = (last_bucket + 1) * B;
+  const std::uint64_t page_begin = first_bucket * B;
+  const std::uint64_t page_end = last_bucket * B + (B - 1);
 
   // The total just before the page, so the first bucket's increase is right.
   double before = 0.0;
@@ -80,50 +136,61 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
     if (row) before = st.column_double(0), have_before = true;
   }
   Statement st;
-  if (Status s = db_->prepare(
-          "SELECT p.first_index, p.samples, p.min_v, p.max_v, p.mean_v, p.last_v, p.total, p.total_u, c.quantity, c.unit"
-          " FROM series_point p JOIN calibration c USING (calibration_id)"
-          " WHERE p.run_id = ? AND p.channel = ? AND p.first_index BETWEEN ? AND ? ORDER BY p.first_index",
-          st);
-      !s.ok())
-    return s;
-  st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(page_begin)).bind(4, clamp64(page_end));
-  double weighted = 0.0;
+  if (tier > 0) {
+    if (Status s = db_->prepare(
+            "SELECT o.first_index, o.samples, o.min_v, o.max_v, o.sum_v, o.last_v, o.total, o.total_u, c.quantity, c.unit"
+            " FROM rollup o JOIN calibration c USING (calibration_id)"
+            " WHERE o.run_id = ? AND o.channel = ? AND o.width_s = ? AND o.bucket BETWEEN ? AND ? ORDER BY o.bucket",
+            st);
+        !s.ok())
+      return s;
+    st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, width_s);
+    st.bind(4, clamp64(page_begin / tier)).bind(5, clamp64(page_end / tier));
+  } else {
+    if (Status s = db_->prepare(
+            "SELECT p.first_index, p.samples, p.min_v, p.max_v, p.mean_v * p.samples, p.last_v, p.total, p.total_u,"
+            " c.quantity, c.unit FROM series_point p JOIN calibration c USING (calibration_id)"
+            " WHERE p.run_id = ? AND p.channel = ? AND p.first_index BETWEEN ? AND ? ORDER BY p.first_index",
+            st);
+        !s.ok())
+      return s;
+    st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(page_begin)).bind(4, clamp64(page_end));
+  }
+  double sum_v = 0.0;
   std::uint64_t current = UINT64_MAX;
+  auto close_bucket = [&] {
+    if (out.buckets.empty()) return;
+    Bucket& b = out.buckets.back();
+    b.mean_v = sum_v / double(std::max<std::uint64_t>(1, b.samples));
+    b.delta = b.total - before;
+    before = b.total;
+  };
   const Status rows = each_row(st, [&](const Statement& r) {
     const std::uint64_t index = std::uint64_t(r.column_int(0));
-    const std::uint64_t bucket = (index - out.lo) / out.bucket_samples;
-    const double total = r.column_double(6);
-    if (!have_before) before = total, have_before = true;  // the run's first point counts from itself
+    const std::uint64_t bucket = index / B;
+    if (!have_before) before = r.column_double(6) , have_before = true;  // the run's first point counts from itself
     if (bucket != current) {
-      if (!out.buckets.empty()) {
-        Bucket& b = out.buckets.back();
-        b.mean_v = weighted / double(std::max<std::uint64_t>(1, b.samples));
-        before = b.total;
-      }
+      close_bucket();
       current = bucket;
       Bucket b;
-      b.first_index = out.lo + bucket * out.bucket_samples;
+      b.first_index = bucket * B;
       b.min_v = r.column_double(2);
       b.max_v = r.column_double(3);
       out.buckets.push_back(b);
-      weighted = 0.0;
+      sum_v = 0.0;
       if (out.quantity.empty()) out.quantity = r.column_text(8), out.unit = r.column_text(9);
     }
     Bucket& b = out.buckets.back();
-    const auto samples = std::uint64_t(r.column_int(1));
-    b.samples += samples;
+    b.samples += std::uint64_t(r.column_int(1));
     b.min_v = std::min(b.min_v, r.column_double(2));
     b.max_v = std::max(b.max_v, r.column_double(3));
-    weighted += r.column_double(4) * double(samples);
+    sum_v += r.column_double(4);
     b.last_v = r.column_double(5);
-    b.total = total;
+    b.total = r.column_double(6);
     b.total_u = r.column_double(7);
-    b.delta = total - before;
   });
   if (!rows.ok()) return rows;
-  if (!out.buckets.empty())
-    out.buckets.back().mean_v = weighted / double(std::max<std::uint64_t>(1, out.buckets.back().samples));
+  close_bucket();
   return Status::success();
 }
 
