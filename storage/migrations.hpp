@@ -8,7 +8,7 @@
 
 namespace accrue::storage {
 
-inline constexpr int kSchemaVersion = 2;
+inline constexpr int kSchemaVersion = 3;
 
 // Read-only: fails with a message naming both versions when the file is newer.
 Status check_schema_version(Database& db, int& version_out);

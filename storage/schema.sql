@@ -1,4 +1,4 @@
--- accrue storage schema, version 2 (PRAGMA user_version = 2).
+-- accrue storage schema, version 3 (PRAGMA user_version = 3).
 --
 -- This file documents the whole current layout. The daemon never runs it: it
 -- applies storage/migrations/NNNN_*.sql in order (embedded at build time) and
@@ -58,8 +58,8 @@ CREATE TABLE raw_block (
   status            INTEGER NOT NULL,   -- protocol status bits
   encoding          INTEGER NOT NULL,
   data              BLOB    NOT NULL,
-  PRIMARY KEY (run_id, first_index)
-) WITHOUT ROWID;
+  UNIQUE (run_id, first_index)
+);  -- a rowid table: blocks of ~1.5 KB stay inside their b-tree page (migration 3)
 
 -- Derived series: one point per channel per series interval (1 s by default).
 CREATE TABLE series_point (
