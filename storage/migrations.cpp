@@ -28,6 +28,7 @@ Status check_schema_version(Database& db, int& version) {
 Status configure_writer_connection(Database& db) {
   if (Status s = db.exec("PRAGMA journal_mode = WAL"); !s.ok()) return s;
   // NORMAL in WAL: a power cut may lose the last transactions, never corrupts.
+  // The writer raises it to FULL (WriterSettings::durable_commits, docs/reliability.md).
   if (Status s = db.exec("PRAGMA synchronous = NORMAL"); !s.ok()) return s;
   return db.exec("PRAGMA foreign_keys = ON");
 }

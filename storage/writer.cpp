@@ -61,6 +61,9 @@ Status Writer::open(const std::string& path, WriterSettings settings, Clock cloc
   int version = 0;
   if (Status s = check_schema_version(*db, version); !s.ok()) return s;
   if (Status s = configure_writer_connection(*db); !s.ok()) return s;
+  if (settings.durable_commits) {
+    if (Status s = db->exec("PRAGMA synchronous = FULL"); !s.ok()) return s;
+  }
   if (Status s = migrate(*db); !s.ok()) return s;
   // Checkpoints are ours (manage_wal), after commits, so readers see a bounded WAL.
   if (Status s = db->exec("PRAGMA wal_autocheckpoint = 0"); !s.ok()) return s;

@@ -65,6 +65,11 @@ struct WriterSettings {
   // Free-disk floor.
   std::uint64_t disk_floor_bytes = 64u << 20;
   double full_retry_interval_s = 5.0;
+  // PRAGMA synchronous on the writer's connection (WAL mode). true (FULL): the
+  // WAL is synced at every commit, so a commit the writer counts survives a
+  // power cut; false (NORMAL): a power cut may roll back the commits made since
+  // the last checkpoint, though never corrupt the file. See docs/reliability.md.
+  bool durable_commits = true;
   // A cap on the file's size (PRAGMA max_page_count); 0: none.
   std::uint64_t max_file_bytes = 0;
 };
