@@ -28,6 +28,7 @@
 #include "daemon/stop_deadline.hpp"
 #include "protocol/encoder.hpp"
 #include "protocol/line_codec.hpp"
+#include "storage/migrations.hpp"
 #include "storage/reader.hpp"
 #include "storage/utc.hpp"
 #include "storage/writer.hpp"
@@ -211,6 +212,12 @@ int main(int argc, char** argv) {
   storage::WriterSettings writer_settings;
   writer_settings.commit_interval = std::chrono::milliseconds(config.commit_interval_ms);
   std::unique_ptr<storage::Writer> writer;
+  // Writer::open migrates a store of an older build; on a large file that
+  // copies every raw block, which can take minutes, so say so before it starts.
+  if (int stored = 0; storage::stored_schema_version(config.database, stored).ok() && stored > 0 &&
+                      stored < storage::kSchemaVersion)
+    log.info("store " + config.database + " has schema version " + std::to_string(stored) + ": migrating to " +
+             std::to_string(storage::kSchemaVersion) + " (a large file takes a while; it is one transaction)");
   if (storage::Status s = storage::Writer::open(config.database, writer_settings, unix_now, writer); !s.ok()) {
     log.error("cannot open the store: " + s.message);
     return 1;

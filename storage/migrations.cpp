@@ -1,6 +1,9 @@
 #include "storage/migrations.hpp"
 
+#include <unistd.h>
+
 #include <iterator>
+#include <memory>
 #include <string>
 
 #include "storage/schema_sql.hpp"
@@ -22,6 +25,19 @@ Status check_schema_version(Database& db, int& version) {
                                               std::to_string(kSchemaVersion) +
                                               "); refusing to touch it (use a newer accrued)");
   }
+  return Status::success();
+}
+
+Status stored_schema_version(const std::string& path, int& version) {
+  version = 0;
+  if (::access(path.c_str(), F_OK) != 0) return Status::success();
+  std::unique_ptr<Database> db;
+  if (Status s = Database::open(path, Database::Mode::read_only, db); !s.ok()) return s;
+  Statement st;
+  if (Status s = db->prepare("PRAGMA user_version", st); !s.ok()) return s;
+  bool row = false;
+  if (Status s = st.step(&row); !s.ok()) return s;
+  version = row ? int(st.column_int(0)) : 0;
   return Status::success();
 }
 

@@ -6,6 +6,7 @@
 
 #include "daemon/api/token.hpp"
 #include "daemon/api/utf8.hpp"
+#include "daemon/api/window_text.hpp"
 #include "storage/utc.hpp"
 
 namespace accrue::daemon::api {
@@ -150,10 +151,10 @@ std::optional<std::string> Methods::handle_line(std::string_view line, Peer& pee
   if (request.is_discarded()) return error_reply(nullptr, rpc_error::parse_error, "Parse error: not valid JSON").dump();
   auto reply = handle(request, peer);
   if (!reply) return std::nullopt;
-  return reply->dump(-1, ' ', false, json::error_handler_t::replace);
+  return std::move(*reply).dump();
 }
 
-std::optional<json> Methods::handle(const json& request, Peer& peer) {
+std::optional<Reply> Methods::handle(const json& request, Peer& peer) {
   if (request.is_array()) {
     if (request.empty()) return error_reply(nullptr, rpc_error::invalid_request, "Invalid Request: empty batch");
     json replies = json::array();
@@ -162,7 +163,7 @@ std::optional<json> Methods::handle(const json& request, Peer& peer) {
         replies.push_back(error_reply(nullptr, rpc_error::invalid_request, "Invalid Request: nested batch"));
         continue;
       }
-      if (auto reply = handle(r, peer)) replies.push_back(std::move(*reply));
+      if (auto reply = handle(r, peer)) replies.push_back(std::move(*reply).to_json());
     }
     if (replies.empty()) return std::nullopt;
     return replies;
@@ -195,12 +196,12 @@ std::optional<json> Methods::handle(const json& request, Peer& peer) {
     peer.close_after_reply = true;
     return error_reply(id, rpc_error::auth_required, "authentication required: call authenticate with the token first");
   }
-  json reply = call(method, params, id, peer);
+  Reply reply = call(method, params, id, peer);
   if (!has_id && !peer.close_after_reply) return std::nullopt;  // a notification gets no reply, even an error
   return reply;
 }
 
-json Methods::call(const std::string& method, const json& params, const json& id, Peer& peer) {
+Reply Methods::call(const std::string& method, const json& params, const json& id, Peer& peer) {
   if (method == "authenticate") {
     if (auto k = unknown_key(params, {"token"})) return bad_params(id, *k);
     if (!params.contains("token") || !params["token"].is_string()) return bad_params(id, "token must be a string");
@@ -356,7 +357,7 @@ bool Methods::resolve_run(const json& params, const json& id, storage::RunInfo& 
   return true;
 }
 
-json Methods::window(const json& params, const json& id) {
+Reply Methods::window(const json& params, const json& id) {
   if (auto k = unknown_key(params, {"channel", "run_id", "from", "to", "max_points", "select", "continuation"}))
     return bad_params(id, *k);
   WindowCursor cursor;
@@ -397,46 +398,41 @@ json Methods::window(const json& params, const json& id) {
     return store_error(id, s.message);
   const std::string& sel = cursor.select;
   const bool all = sel == "all";
-  json points = json::array();
-  for (const auto& b : page.buckets) {
-    json p = {{"index", b.first_index},
-              {"utc", storage::rfc3339_utc(run.utc_at_index0 + double(b.first_index) * run.sample_period_s)},
-              {"samples", b.samples}};
-    if (all || sel == "volts") {
-      p["mean_v"] = b.mean_v;
-      p["min_v"] = b.min_v;
-      p["max_v"] = b.max_v;
-      p["last_v"] = b.last_v;
-    }
-    if (all || sel == "total") {
-      p["total"] = b.total;
-      p["total_u"] = b.total_u;
-    }
-    if (all || sel == "quantity") p["delta"] = b.delta;
-    if (all || sel == "rate") {
-      const double span_s = double(b.samples) * run.sample_period_s;
-      p["rate"] = span_s > 0 ? b.delta / span_s : 0.0;
-    }
-    points.push_back(std::move(p));
-  }
   json cont = nullptr;
   if (page.next_start) {
     WindowCursor next = cursor;
     next.lo = page.lo, next.hi = page.hi, next.bucket = page.bucket_samples, next.next = *page.next_start;
     cont = encode(next);
   }
-  return result_reply(id, {{"run_id", run.run_id},
-                           {"channel", cursor.channel},
-                           {"select", sel},
-                           {"quantity", page.quantity},
-                           {"unit", page.unit},
-                           {"rate_unit", page.unit.empty() ? "" : page.unit + "/s"},
-                           {"sample_period_s", run.sample_period_s},
-                           {"bucket_samples", page.bucket_samples},
-                           {"from_index", page.lo},
-                           {"to_index", page.hi},
-                           {"points", points},
-                           {"continuation", cont}});
+  const json result = {{"run_id", run.run_id},
+                       {"channel", cursor.channel},
+                       {"select", sel},
+                       {"quantity", page.quantity},
+                       {"unit", page.unit},
+                       {"rate_unit", page.unit.empty() ? "" : page.unit + "/s"},
+                       {"sample_period_s", run.sample_period_s},
+                       {"bucket_samples", page.bucket_samples},
+                       {"from_index", page.lo},
+                       {"to_index", page.hi},
+                       {"continuation", cont}};
+  // The points go in as text (see window_text.hpp); the rest is small. Keys
+  // keep json::dump()'s sorted order: "points" falls between "from_index" and
+  // "quantity", and the envelope is id, jsonrpc, result.
+  json head = json::object(), tail = json::object();
+  for (const auto& [key, value] : result.items()) (key < "points" ? head : tail)[key] = value;
+  std::string text = "{\"id\":" + id.dump() + ",\"jsonrpc\":\"2.0\",\"result\":";
+  std::string h = head.dump(-1, ' ', false, json::error_handler_t::replace);
+  h.pop_back();  // the closing brace: the points and the tail follow
+  text += h;
+  text += ",\"points\":";
+  append_window_points(text, page, run.utc_at_index0, run.sample_period_s,
+                       {.volts = all || sel == "volts", .total = all || sel == "total",
+                        .quantity = all || sel == "quantity", .rate = all || sel == "rate"});
+  std::string t = tail.dump(-1, ' ', false, json::error_handler_t::replace);
+  t.front() = ',';  // the opening brace: these keys continue the same object
+  text += t;
+  text += '}';
+  return Reply::serialized(std::move(text));
 }
 
 json Methods::segments(const json& params, const json& id) {

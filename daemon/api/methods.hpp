@@ -16,6 +16,7 @@
 
 #include "daemon/api/control.hpp"
 #include "daemon/api/hub.hpp"
+#include "daemon/api/reply.hpp"
 #include "daemon/api/sink.hpp"
 #include "daemon/api/store_queries.hpp"
 #include "storage/reader.hpp"
@@ -59,15 +60,15 @@ class Methods {
   Methods(std::string database, StatusSource status, Hub& hub, Control* control, MethodSettings settings = {});
   // A whole request line: parses it and dispatches.
   std::optional<std::string> handle_line(std::string_view line, Peer& peer);
-  std::optional<nlohmann::json> handle(const nlohmann::json& request, Peer& peer);
+  std::optional<Reply> handle(const nlohmann::json& request, Peer& peer);
 
  private:
-  nlohmann::json call(const std::string& method, const nlohmann::json& params, const nlohmann::json& id, Peer& peer);
+  Reply call(const std::string& method, const nlohmann::json& params, const nlohmann::json& id, Peer& peer);
   nlohmann::json totals(const nlohmann::json& id);
   nlohmann::json runs(const nlohmann::json& id);
   nlohmann::json channels(const nlohmann::json& id);
   nlohmann::json calibration(const nlohmann::json& params, const nlohmann::json& id);
-  nlohmann::json window(const nlohmann::json& params, const nlohmann::json& id);
+  Reply window(const nlohmann::json& params, const nlohmann::json& id);
   nlohmann::json segments(const nlohmann::json& params, const nlohmann::json& id);
   nlohmann::json events(const nlohmann::json& params, const nlohmann::json& id);
   nlohmann::json control(const std::string& method, const nlohmann::json& params, const nlohmann::json& id);
