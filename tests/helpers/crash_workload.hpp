@@ -14,6 +14,8 @@
 // A writer that resumes takes its position and total from the stored
 // checkpoint (not from this header), so the check below also checks the
 // resumption: rows after a restart carry the right totals only if it was exact.
+#include <unistd.h>
+
 #include <cstdint>
 #include <string>
 #include <vector>
@@ -121,6 +123,8 @@ inline bool rows(storage::Database& db, const std::string& sql, std::vector<std:
 // point once, none missing, none after. Doubles are compared exactly (see above).
 inline Verdict verify(const std::string& path) {
   Verdict v;
+  // Killed before the file was even created: nothing was accepted, nothing is lost.
+  if (::access(path.c_str(), F_OK) != 0) return v;
   std::unique_ptr<storage::Database> db;
   if (storage::Status s = storage::Database::open(path, storage::Database::Mode::read_only, db); !s.ok())
     return {"open: " + s.message, 0};
