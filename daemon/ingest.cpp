@@ -40,6 +40,11 @@ void Ingest::on_bytes(std::span<const std::uint8_t> bytes, double receive_unix) 
 
 void Ingest::on_link_lost(const std::string& why) {
   // A pulled cable does not end the run: the board may still be integrating.
+  // Whole frames behind a header that can no longer complete still count.
+  messages_.clear();
+  if (!lines_) decoder_.finish(messages_);
+  const double now = clock_();
+  for (const auto& m : messages_) handle(m, now);
   decoder_.reset();
   line_decoder_.reset();
   event("link_lost", why);
@@ -199,6 +204,8 @@ void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
     ++counters_.gaps;
     counters_.missing_samples += missing;
     event("sample_gap", "missing_samples=" + std::to_string(missing), run.next_index);
+    // The chain must not stitch across the gap: a reset may be hidden in it.
+    for (std::size_t c = 0; c < run.chains.size(); ++c) run.chains[c]->on_missing_samples(run.rows[c].output);
   }
   run.any_samples = true;
   run.next_index = b.first_index + b.samples_per_channel;
@@ -287,7 +294,8 @@ nlohmann::json Ingest::status() const {
   json j = {
       {"decoder",
        {{"bytes_in", d.bytes_in}, {"frames_ok", d.frames_ok}, {"discarded_bytes", d.discarded_bytes},
-        {"bad_crc", d.bad_crc}, {"oversize", d.oversize}, {"accepted_bytes", d.accepted_bytes}, {"bad_version", d.bad_version}, {"malformed", d.malformed}}},
+        {"bad_crc", d.bad_crc}, {"oversize", d.oversize}, {"accepted_bytes", d.accepted_bytes}, {"bad_version", d.bad_version}, {"malformed", d.malformed},
+        {"truncated", d.truncated}}},
       {"ingest",
        {{"blocks", counters_.blocks}, {"samples", counters_.samples},
         {"samples_before_identity", counters_.samples_before_identity}, {"gaps", counters_.gaps},

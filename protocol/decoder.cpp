@@ -73,6 +73,15 @@ void Decoder::drop(std::size_t n) {
 void Decoder::feed(std::span<const std::uint8_t> bytes, std::vector<Message>& out) {
   counters_.bytes_in += bytes.size();
   buffer_.insert(buffer_.end(), bytes.begin(), bytes.end());
+  scan(out, false);
+}
+
+void Decoder::finish(std::vector<Message>& out) {
+  scan(out, true);
+  reset();
+}
+
+void Decoder::scan(std::vector<Message>& out, bool at_end) {
   for (;;) {
     const std::size_t avail = buffer_.size() - pos_;
     const std::uint8_t* base = buffer_.data() + pos_;
@@ -85,7 +94,13 @@ void Decoder::feed(std::span<const std::uint8_t> bytes, std::vector<Message>& ou
       drop(skip);
       continue;
     }
-    if (avail < frame::kHeaderSize) break;
+    if (avail == 0) break;
+    if (avail < frame::kHeaderSize) {
+      if (!at_end) break;
+      ++counters_.truncated;
+      drop(1);
+      continue;
+    }
     if (base[2] != frame::kVersion) {
       ++counters_.bad_version;
       drop(1);
@@ -98,7 +113,14 @@ void Decoder::feed(std::span<const std::uint8_t> bytes, std::vector<Message>& ou
       continue;
     }
     const std::size_t total = frame::kHeaderSize + length + frame::kCrcSize;
-    if (avail < total) break;
+    if (avail < total) {
+      if (!at_end) break;
+      // The stream ended inside this frame (or its length was corrupted):
+      // it will never complete, but frames behind its header may be whole.
+      ++counters_.truncated;
+      drop(1);
+      continue;
+    }
     const std::span<const std::uint8_t> frame_bytes(base, total);
     const std::uint32_t crc = get_u32(frame_bytes, frame::kHeaderSize + length);
     if (crc32_iso_hdlc(frame_bytes.subspan(2, 4 + length)) != crc) {

@@ -21,6 +21,7 @@ struct DecoderCounters {
   std::uint64_t oversize = 0;         // header declared a payload over kMaxPayload
   std::uint64_t bad_version = 0;
   std::uint64_t malformed = 0;        // CRC good, payload not a valid message
+  std::uint64_t truncated = 0;        // a frame the stream ended inside (finish())
 };
 
 // Parses one payload of the given frame type; nullopt when it is not valid.
@@ -30,13 +31,19 @@ class Decoder {
  public:
   // Appends every complete message found in `bytes` (after what was buffered) to `out`.
   void feed(std::span<const std::uint8_t> bytes, std::vector<Message>& out);
-  // The stream ended or the link was reopened: buffered partial input is discarded and counted.
+  // The stream ended (end of file, link lost): a frame that can no longer
+  // complete is counted as truncated and rescanned from its next byte, so
+  // whole frames behind a corrupted length still come out; the rest is
+  // discarded and counted. The decoder is then empty.
+  void finish(std::vector<Message>& out);
+  // Buffered partial input is discarded and counted (no rescan).
   void reset();
   const DecoderCounters& counters() const { return counters_; }
   std::size_t buffered() const { return buffer_.size() - pos_; }
 
  private:
   void drop(std::size_t n);
+  void scan(std::vector<Message>& out, bool at_end);
   std::vector<std::uint8_t> buffer_;
   std::size_t pos_ = 0;
   DecoderCounters counters_;

@@ -287,6 +287,14 @@ double ChannelChain::total_uncertainty_v(const ChainState& s) const {
   return std::sqrt(s.end_points_var_v2 + s.gap_var_v2 + s.closed_drift_var_v2 + drift_var_v2(s));
 }
 
+void ChannelChain::on_missing_samples(ChainOutput& out) {
+  if (mode_ == Mode::dead) return;  // a zero window or reset carries on; its own end handles it
+  if (in_quiet_) close_quiet_window(out);
+  close_segment(out);
+  mode_ = Mode::settling;
+  settle_left_ = settle_samples_;
+}
+
 void ChannelChain::close_segment(ChainOutput& out) {
   if (windows_.empty()) return;
   out.segments.push_back(account_open_segment(state_));

@@ -64,6 +64,13 @@ class ChannelChain {
   // `codes` holds `count` samples for this channel, `stride` apart, the first at `first_index`.
   void process(std::uint64_t first_index, std::uint8_t status, const std::int32_t* codes, std::size_t count,
                std::size_t stride, ChainOutput& out);
+  // Samples were lost before the next process() call (a sample-index gap:
+  // frames dropped, corrupted, or sent while the cable was out). The front
+  // end kept integrating, but a reset may have happened unseen in the gap, so
+  // the open segment ends at the last sample seen and the next one opens after
+  // a settle time; what the gap held is estimated from the rates either side,
+  // like any dead time, with its uncertainty.
+  void on_missing_samples(ChainOutput& out);
   // The run ended: close the open segment and the open series bucket.
   void finish(ChainOutput& out);
 

@@ -5,6 +5,7 @@
 
 #include <csignal>
 
+#include <algorithm>
 #include <cerrno>
 #include <chrono>
 #include <cmath>
@@ -17,6 +18,7 @@
 #include <thread>
 
 #include "protocol/decoder.hpp"
+#include "protocol/line_codec.hpp"
 #include "tools/accrue-sim/board_model.hpp"
 #include "tools/accrue-sim/pty.hpp"
 
@@ -72,7 +74,11 @@ truth (the exact integrated charge) as JSON.
 options:
   --scenario FILE       JSON overrides of the default scenario (see --print-scenario)
   --set KEY=VALUE       override one scenario number, e.g. --set duration_s=600
-                        or --set front_end.bias_a=2e-12 (repeatable)
+                        or --set front_end.bias_a=2e-12 (repeatable); faults too,
+                        e.g. --set faults.drop_frame_rate=1e-3 or
+                        --set faults.cable_pull_at_s=[300,900] (see --print-scenario)
+  --text-lines          speak the text-line variant (PROTOCOL.md section 5), same as
+                        --set wire=text_lines
   --speed X             board time per wall time (default 0: as fast as the reader takes it)
   --truth FILE          write the truth JSON here (default: stdout, after the path line)
   --path-file FILE      also write the pseudo-terminal path to FILE
@@ -104,10 +110,33 @@ bool set_key(nlohmann::json& overrides, const std::string& kv, std::string& why)
   return true;
 }
 
-bool write_all(int fd, const std::uint8_t* data, std::size_t n, sim::BoardModel& board, protocol::Decoder& decoder,
+// Reads the host's commands (frames or text lines, as the board speaks) and answers them.
+class CommandReader {
+ public:
+  CommandReader(sim::BoardModel& board, bool lines) : board_(board), lines_(lines) {}
+  void on_bytes(std::span<const std::uint8_t> bytes, std::vector<std::uint8_t>& replies) {
+    commands_.clear();
+    if (lines_) line_decoder_.feed(bytes, commands_);
+    else decoder_.feed(bytes, commands_);
+    for (const auto& m : commands_)
+      if (auto* c = std::get_if<protocol::BoardCommand>(&m)) board_.command(*c, replies);
+  }
+  void reset() {
+    decoder_.reset();
+    line_decoder_.reset();
+  }
+
+ private:
+  sim::BoardModel& board_;
+  bool lines_;
+  protocol::Decoder decoder_;
+  protocol::LineDecoder line_decoder_;
+  std::vector<protocol::Message> commands_;
+};
+
+bool write_all(int fd, const std::uint8_t* data, std::size_t n, CommandReader& reader,
                std::vector<std::uint8_t>& replies) {
   std::size_t done = 0;
-  std::vector<protocol::Message> commands;
   std::uint8_t in[4096];
   while (done < n) {
     if (g_stop_requested) return true;
@@ -115,12 +144,7 @@ bool write_all(int fd, const std::uint8_t* data, std::size_t n, sim::BoardModel&
     if (::poll(&p, 1, 1000) < 0 && errno != EINTR) return false;
     if (p.revents & POLLIN) {
       const ssize_t r = ::read(fd, in, sizeof in);
-      if (r > 0) {
-        commands.clear();
-        decoder.feed(std::span<const std::uint8_t>(in, std::size_t(r)), commands);
-        for (const auto& m : commands)
-          if (auto* c = std::get_if<protocol::BoardCommand>(&m)) board.command(*c, replies);
-      }
+      if (r > 0) reader.on_bytes(std::span<const std::uint8_t>(in, std::size_t(r)), replies);
     }
     if (p.revents & POLLOUT) {
       const ssize_t w = ::write(fd, data + done, n - done);
@@ -129,6 +153,27 @@ bool write_all(int fd, const std::uint8_t* data, std::size_t n, sim::BoardModel&
     }
   }
   return true;
+}
+
+// Sleeps `s` seconds of wall time, waking early on a stop request.
+void nap(double s) {
+  const auto until = std::chrono::steady_clock::now() + std::chrono::duration_cast<std::chrono::steady_clock::duration>(
+                                                            std::chrono::duration<double>(s));
+  while (!g_stop_requested && std::chrono::steady_clock::now() < until)
+    std::this_thread::sleep_for(std::min<std::chrono::steady_clock::duration>(until - std::chrono::steady_clock::now(),
+                                                                              std::chrono::milliseconds(50)));
+}
+
+// Waits (at most `limit_s`) until the reader has taken every byte written.
+// The count the terminal reports covers only its read queue, not bytes still
+// on their way from the master side, so it must stay at zero for a while.
+void drain(const sim::PseudoTerminal& pty, double limit_s) {
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(limit_s);
+  int quiet_checks = 0;
+  while (!g_stop_requested && quiet_checks < 10 && std::chrono::steady_clock::now() < deadline) {
+    quiet_checks = pty.unread_bytes() > 0 ? 0 : quiet_checks + 1;
+    std::this_thread::sleep_for(std::chrono::milliseconds(20));
+  }
 }
 
 }  // namespace
@@ -175,6 +220,8 @@ int main(int argc, char** argv) {
       link_path = value();
     } else if (a == "--linger-s") {
       linger_s = std::atof(value().c_str());
+    } else if (a == "--text-lines") {
+      overrides["wire"] = "text_lines";
     } else if (a == "--print-scenario") {
       print_scenario = true;
     } else {
@@ -211,20 +258,74 @@ int main(int argc, char** argv) {
   }
 
   sim::BoardModel board(scenario);
-  protocol::Decoder decoder;
+  // Link faults sit between the board and the terminal; the board's own
+  // (reboot, clock skew) are in the model. Off unless the scenario asks.
+  sim::FaultInjector injector(scenario.faults, scenario.wire == sim::Wire::frames);
+  if (scenario.faults.any()) board.set_injector(&injector);
+  CommandReader reader(board, scenario.wire == sim::Wire::lines);
+  std::vector<double> pulls = scenario.faults.cable_pull_at_s;
+  std::sort(pulls.begin(), pulls.end());
+  std::size_t next_pull = 0;
+  bool stall_due = scenario.faults.stall_at_s >= 0;
+  if (!pulls.empty() && link_path.empty())
+    std::fprintf(stderr, "accrue-sim: warning: cable pulls without --link: a reader cannot find the new terminal\n");
   std::vector<std::uint8_t> out, replies;
   const auto wall_start = std::chrono::steady_clock::now();
   const std::uint64_t chunk = std::max<std::uint64_t>(scenario.samples_per_block, 8192);
   bool ok = true;
   while (ok) {
+    // Stop producing exactly where the next cable pull or stall is due.
+    std::uint64_t n = chunk;
+    const double now_s = board.true_time_s();
+    const double pull_s = next_pull < pulls.size() ? pulls[next_pull] : HUGE_VAL;
+    const double stall_s = stall_due ? scenario.faults.stall_at_s : HUGE_VAL;
+    const double next_fault_s = std::min(pull_s, stall_s);
+    if (next_fault_s <= now_s) {
+      if (stall_s <= now_s) {
+        injector.stall_next_block();
+        stall_due = false;
+      } else {
+        // Cable pull: the reader takes what was sent, then link and terminal
+        // go; the board runs on unheard for cable_pull_s; a new terminal and
+        // the same link come back after cable_pull_pause_s of wall time.
+        ++next_pull;
+        drain(pty, std::min(linger_s, 10.0));
+        link.remove();
+        pty.close();
+        injector.set_cable_out(true);
+        out.clear();
+        board.produce(std::uint64_t(std::llround(scenario.faults.cable_pull_s / scenario.sample_period_s)), out);
+        injector.set_cable_out(false);
+        replies.clear();  // nothing is heard while the cable is out
+        reader.reset();
+        nap(scenario.faults.cable_pull_pause_s);
+        if (!pty.open(why) || (!link_path.empty() && !link.create(link_path, pty.slave_path(), why))) {
+          std::fprintf(stderr, "accrue-sim: after a cable pull: %s\n", why.c_str());
+          ok = false;
+          break;
+        }
+        if (!path_file.empty()) std::ofstream(path_file) << pty.slave_path() << "\n";
+        if (board.finished()) break;
+      }
+      continue;
+    }
+    if (next_fault_s < HUGE_VAL)
+      n = std::min<std::uint64_t>(n, std::uint64_t(std::ceil((next_fault_s - now_s) / board.true_period_s())));
     out.clear();
-    const bool more = board.produce(chunk, out);
+    const bool more = board.produce(n, out);
+    std::size_t cut = 0;
+    if (injector.take_stall(cut)) {
+      // The board went silent in the middle of a frame for a while.
+      ok = write_all(pty.master_fd(), out.data(), cut, reader, replies);
+      nap(scenario.faults.stall_pause_s);
+      out.erase(out.begin(), out.begin() + std::ptrdiff_t(cut));
+    }
     out.insert(out.end(), replies.begin(), replies.end());
     replies.clear();
-    ok = write_all(pty.master_fd(), out.data(), out.size(), board, decoder, replies);
+    if (ok) ok = write_all(pty.master_fd(), out.data(), out.size(), reader, replies);
     if (!more || g_stop_requested) break;
     if (speed > 0) {
-      const double board_s = double(board.next_index()) * scenario.sample_period_s;
+      const double board_s = board.true_time_s();
       const auto due = wall_start + std::chrono::duration_cast<std::chrono::steady_clock::duration>(
                                         std::chrono::duration<double>(board_s / speed));
       // Short naps so a stop request is honoured within 50 ms even at slow speeds.
@@ -233,7 +334,7 @@ int main(int argc, char** argv) {
             due - std::chrono::steady_clock::now(), std::chrono::milliseconds(50)));
     }
   }
-  if (!replies.empty()) write_all(pty.master_fd(), replies.data(), replies.size(), board, decoder, replies);
+  if (!replies.empty()) write_all(pty.master_fd(), replies.data(), replies.size(), reader, replies);
 
   const auto& t = board.truth();
   nlohmann::json truth = {
@@ -255,7 +356,29 @@ int main(int argc, char** argv) {
       {"adc_lsb_v", scenario.adc.full_scale_v / std::ldexp(1.0, scenario.adc.bits - 1)},
       {"max_input_current_a", scenario.beam.current_a * (1.0 + std::fabs(scenario.beam.modulation))},
       {"complete", ok && !g_stop_requested},
+      {"channel_count", scenario.channel_count},
+      {"wire", scenario.wire == sim::Wire::lines ? "text_lines" : "frames"},
+      {"sessions", t.sessions},
+      {"faults", injector.counts().to_json()},
+      {"fault_settings", sim::to_json(scenario.faults)},
   };
+  // Per channel: its own input and front end (channel 0 is also the top level).
+  truth["channels"] = nlohmann::json::array();
+  for (int k = 0; k < scenario.channel_count; ++k) {
+    const auto m = scenario.channel(k);
+    const auto& ct = t.channels[std::size_t(k)];
+    truth["channels"].push_back({{"channel", k},
+                                 {"true_total", double(ct.charge_c)},
+                                 {"charge_lost_in_dead_time", double(ct.lost_in_dead_c)},
+                                 {"charge_during_reboot", double(ct.during_reboot_c)},
+                                 {"clipped_samples", ct.clipped_samples},
+                                 {"c_farad", m.front_end.c_farad},
+                                 {"r1_ohm", m.front_end.r1_ohm},
+                                 {"noise_v", m.front_end.noise_v},
+                                 {"drift_v_per_s", sim::drift_v_per_s(m.front_end)},
+                                 {"max_input_current_a", m.beam.current_a * (1.0 + std::fabs(m.beam.modulation))}});
+  }
+  truth["charge_during_reboot"] = double(t.channels[0].during_reboot_c);
   if (truth_path.empty()) {
     std::cout << truth.dump() << "\n";
     std::cout.flush();
@@ -266,9 +389,7 @@ int main(int argc, char** argv) {
     std::rename((truth_path + ".tmp").c_str(), truth_path.c_str());
   }
   // Let the reader drain what is still queued before the cable is "pulled".
-  const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(linger_s);
-  while (!g_stop_requested && pty.unread_bytes() > 0 && std::chrono::steady_clock::now() < deadline)
-    std::this_thread::sleep_for(std::chrono::milliseconds(20));
+  drain(pty, linger_s);
   if (!g_stop_requested) std::this_thread::sleep_for(std::chrono::milliseconds(100));
   link.remove();
   pty.close();

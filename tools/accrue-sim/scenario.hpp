@@ -5,11 +5,13 @@
 // bias current, a threshold-triggered reset switch, and a 60 s zero window at
 // the start. Loaded from / written to JSON so runs can be described in files.
 #include <cstdint>
+#include <map>
 #include <string>
 
 #include <nlohmann/json.hpp>
 
 #include "tools/accrue-sim/beam.hpp"
+#include "tools/accrue-sim/faults.hpp"
 
 namespace accrue::sim {
 
@@ -32,6 +34,15 @@ struct AdcModel {
   double full_scale_v = 10.0;  // bipolar
 };
 
+// One channel's input and front end.
+struct ChannelModel {
+  BeamModel beam;
+  FrontEndModel front_end;
+};
+
+// How the board talks: framed binary (PROTOCOL.md §2-3) or text lines (§5).
+enum class Wire { frames, lines };
+
 struct Scenario {
   std::string name = "overnight Faraday cup (invented demo scenario)";
   double duration_s = 8 * 3600.0;
@@ -44,11 +55,23 @@ struct Scenario {
   BeamModel beam;
   FrontEndModel front_end;
   AdcModel adc;
+  // Channels of the board (1..16). Channel 0 is `beam` and `front_end`; every
+  // other channel starts as an invented variation of it (channel k: beam
+  // current / (k+1), offset voltage sign alternating) and then takes the
+  // overrides in `channel_overrides[k]` ({"beam": {...}, "front_end": {...}};
+  // keys of "channels" in JSON are the channel numbers as strings).
+  int channel_count = 1;
+  std::map<int, nlohmann::json> channel_overrides;
+  Wire wire = Wire::frames;
+  FaultSettings faults;
 
   std::uint64_t total_samples() const;
-  // d(Vout)/dt with the input at zero (offset and bias current), V/s.
+  // d(Vout)/dt with the input at zero (offset and bias current), V/s, channel 0.
   double drift_v_per_s() const;
+  ChannelModel channel(int k) const;
 };
+
+double drift_v_per_s(const FrontEndModel& fe);
 
 nlohmann::json to_json(const Scenario& s);
 // Keys present in `j` override `s`; returns an error text, empty if fine.
