@@ -359,6 +359,7 @@ int main(int argc, char** argv) {
       {"channel_count", scenario.channel_count},
       {"wire", scenario.wire == sim::Wire::lines ? "text_lines" : "frames"},
       {"sessions", t.sessions},
+      {"unsent_at_reboot", t.unsent_at_reboot},
       {"faults", injector.counts().to_json()},
       {"fault_settings", sim::to_json(scenario.faults)},
   };
