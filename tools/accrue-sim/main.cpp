@@ -166,11 +166,14 @@ void nap(double s) {
 
 // Waits (at most `limit_s`) until the reader has taken every byte written.
 // The count the terminal reports covers only its read queue, not bytes still
-// on their way from the master side, so it must stay at zero for a while.
+// on their way from the master side, so it must stay at zero for a while:
+// the kernel moves them in a deferred work item, which on a loaded machine
+// (a CI run beside builds) has been seen to wait well over 100 ms.
 void drain(const sim::PseudoTerminal& pty, double limit_s) {
   const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(limit_s);
+  constexpr int kQuietChecks = 25;  // 0.5 s of an empty read queue
   int quiet_checks = 0;
-  while (!g_stop_requested && quiet_checks < 10 && std::chrono::steady_clock::now() < deadline) {
+  while (!g_stop_requested && quiet_checks < kQuietChecks && std::chrono::steady_clock::now() < deadline) {
     quiet_checks = pty.unread_bytes() > 0 ? 0 : quiet_checks + 1;
     std::this_thread::sleep_for(std::chrono::milliseconds(20));
   }
