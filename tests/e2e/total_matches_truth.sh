@@ -18,9 +18,10 @@ for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
 pids+=($!)
 for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
-# The run ended because the simulator closed its terminal; its --link went
-# first, so this daemon's reconnect attempts cannot reach another test's
-# simulator that is handed the same /dev/pts number.
+# When the simulator exits, its --link has gone before its terminal closed,
+# so this daemon's reconnect attempts cannot reach another test's simulator
+# that is handed the same /dev/pts number.
+wait "${pids[0]}"
 [ ! -L "$work/board" ] || { echo "the simulator left its link behind"; exit 1; }
 "$client" --socket "$work/s.sock" --json compare --truth "$work/truth.json" >"$work/compare.json"
 "$client" --socket "$work/s.sock" --json totals >"$work/totals.json"
