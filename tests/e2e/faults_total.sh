@@ -100,6 +100,7 @@ edges = sum(1 for a, b, _ in dead if holds_edge(a, b))
 reset_bound = truth["resets"] * 0.5 * i_max * (truth["reset_s"] + 0.002 + dt)
 tol = 4 * ch["std_uncertainty"] + gap_bound + reset_bound
 err = abs(cmp["total"] - cmp["truth"])
+print("stated U(k=2)", cmp["expanded_uncertainty_k2"], "covered_by_k2", cmp["covered_by_k2"], "discarded expected", f["expect_discarded_bytes"], "false syncs", f["expect_false_syncs"], "predicted bad_crc/version/oversize", f["expect_bad_crc"], f["expect_bad_version"], f["expect_oversize"])
 print(f"total {cmp['total']:.9e} C, truth {cmp['truth']:.9e} C, |error| {err:.3e} C, tolerance {tol:.3e} C "
       f"(4 u = {4 * ch['std_uncertainty']:.2e} C, {edges} of {len(gaps)} gaps hold a spill edge: {gap_bound:.2e} C, "
       f"resets {truth['resets']}: {reset_bound:.2e} C)")
