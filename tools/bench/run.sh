@@ -5,6 +5,7 @@
 #     for 60 s, with the daemon's CPU per million samples and bytes per sample,
 # (3) the same stream into a naive Python logger (a row per sample), as ratios,
 # (4) 1000-point window queries over 1 min .. 7 days of a 7-day 1 kS/s store,
+# (5) a field load of 4 channels at 10 kS/s (tools/bench/field_load.sh),
 # and writes tools/bench/RESULTS.md. Not a test: figures depend on the machine.
 set -euo pipefail
 top=$(cd "$(dirname "$0")/../.." && pwd)
@@ -90,17 +91,21 @@ win_bytes=$(( $(stat -c %s "$work/win.db") + $(stat -c %s "$work/win.db-wal" 2>/
 win_raw_bytes=$(sqlite3 -readonly "$work/win.db" \
   "SELECT SUM(pgsize) FROM dbstat WHERE name IN ('raw_block', 'sqlite_autoindex_raw_block_1')")
 
+# (5) Field load: 4 channels at 10 kS/s, paced for a minute, then simulated hours unpaced.
+"$top/tools/bench/field_load.sh" "$sim" "$daemon" "$client" "$work" >"$work/field.json"
+
 machine="$(uname -m), $(nproc) cores, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | xargs), $(date -u +%Y-%m-%d)"
 /usr/bin/python3 - "$work/kernel.json" "$top/tools/bench/RESULTS.md" "$machine" \
   "$paced_samples" "$p_wall" "$p_cpu" "$p_bytes" "$p_shed" "$fast_samples" "$f_wall" "$f_cpu" "$f_bytes" "$f_shed" \
-  "$n_seen" "$n_wall" "$n_bytes" "$work/window.json" "$win_s" "$win_bytes" "$csv_per_sample" "$win_raw_bytes" "$work/profile.txt" <<'PY'
+  "$n_seen" "$n_wall" "$n_bytes" "$work/window.json" "$win_s" "$win_bytes" "$csv_per_sample" "$win_raw_bytes" "$work/profile.txt" "$work/field.json" <<'PY'
 import json, sys
 k = json.load(open(sys.argv[1]))["benchmarks"]
 def med(name):
     for b in k:
         if b["name"].startswith(name) and b.get("aggregate_name") == "median":
             return b["items_per_second"]
-(out, machine, ps, pw, pc, pb, pshed, fs, fw, fc, fb, fshed, ns, nw, nb, wjson, ws, wb, csv, wraw, prof) = sys.argv[2:]
+(out, machine, ps, pw, pc, pb, pshed, fs, fw, fc, fb, fshed, ns, nw, nb, wjson, ws, wb, csv, wraw, prof, fjson) = sys.argv[2:]
+field = json.load(open(fjson))
 win = json.load(open(wjson))
 ws, wb = float(ws), float(wb)
 ps, pw, pc, pb, fs, fw, fc, fb, ns, nw, nb = map(float, (ps, pw, pc, pb, fs, fw, fc, fb, ns, nw, nb))
@@ -130,6 +135,13 @@ for name, r in win.items():
                  f"| {r['p50_ms']:.2f} / {r['p99_ms']:.2f} ms | ≤ 5 / ≤ 20 ms |")
 if "7 days" in win and "1 min" in win:
     lines.append(f"| window p50, 7 days ÷ 1 min | {win['7 days']['p50_ms']/win['1 min']['p50_ms']:.2f}× | ≤ 3× |")
+f = field
+lines += [
+ f"| field load, 4 ch × 10 kS/s paced at real time for {f['paced_wall_s']:.0f} s: daemon CPU | {f['paced_cpu_percent_of_one_core']:.2f} % of one core | ≤ 1 % |",
+ f"| field load: daemon wake-ups (voluntary context switches) | {f['paced_wakeups_per_s']:.1f} per s | — |",
+ f"| field load unpaced, {f['hours']} simulated h: CPU per simulated hour | {f['cpu_s_per_simulated_hour']:.1f} s ({f['cpu_s_per_simulated_hour']/36:.2f} % of one core at real time) | ≤ 1 % |",
+ f"| field load: resident memory at hour 1 / at the end / highest after hour 1 | {f['rss_mib_at_hour_1']:.1f} / {f['rss_mib_at_end']:.1f} / {f['rss_mib_max_after_hour_1']:.1f} MiB (paced: {f['paced_rss_mib']:.1f} MiB), shed {f['shed']} | ≤ 30 MB, flat |",
+]
 lines.append("")
 profile = open(prof).read().rstrip()
 if profile:
