@@ -80,19 +80,49 @@ BaselineEstimate solve(const std::vector<double>& u, const std::vector<double>& 
     for (std::size_t i = 0; i < n; ++i) w[i] = std::fabs(r[i]) <= k ? 1.0 : k / std::fabs(r[i]);
     if (it > 0 && change <= 1e-12 * (std::fabs(beta[0]) + scale)) break;
   }
-  // Residual variance: weighted SSR over the degrees of freedom (for OLS the
-  // textbook s^2; for Huber the usual approximation with the final weights).
-  double ssr = 0.0, wsum = 0.0;
-  for (std::size_t i = 0; i < n; ++i) {
-    ssr += w[i] * r[i] * r[i];
-    wsum += w[i];
-    if (w[i] < 1.0) ++e.downweighted;
+  double s2 = 0.0;
+  if (robust == BaselineRobust::huber && scale > 0) {
+    // Huber's covariance for an M-estimate (P. J. Huber, Robust Statistics,
+    // Wiley 1981, ch. 7; cited from memory, the form often called "H1"): with z = r/scale,
+    // psi(z) = clamp(z, -k, k) and m the share of |z| <= k,
+    //   cov = K^2 * scale^2 * [sum psi^2/(n - p)] / m^2 * (X'X)^-1,
+    //   K = 1 + (p/n) * (1 - m)/m.
+    // Using the weighted residuals' SSR instead would count every glitch at
+    // k*|r| and overstate the error several-fold.
+    const double k = 1.345;
+    double psi2 = 0.0, inliers = 0.0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const double z = r[i] / scale;
+      const double psi = std::clamp(z, -k, k);
+      psi2 += psi * psi;
+      if (std::fabs(z) <= k) inliers += 1.0;
+      if (w[i] < 1.0) ++e.downweighted;
+    }
+    const double m = inliers / double(n);
+    const double dof = double(n) - double(P);
+    if (m > 0 && dof > 0) {
+      const double big_k = 1.0 + double(P) / double(n) * (1.0 - m) / m;
+      s2 = big_k * big_k * scale * scale * (psi2 / dof) / (m * m);
+    }
+    std::array<std::array<double, P>, P> xtx{};
+    for (std::size_t i = 0; i < n; ++i) {
+      const double basis[3] = {1.0, u[i], u[i] * u[i]};
+      for (std::size_t j = 0; j < P; ++j)
+        for (std::size_t q = 0; q < P; ++q) xtx[j][q] += basis[j] * basis[q];
+    }
+    if (!invert<P>(xtx, inv)) return e;
+    // The noise the fit saw: the robust scale (MAD/0.6745), which glitches barely move.
+    e.residual_rms_v = scale;
+  } else {
+    // Textbook OLS: s^2 = SSR/(n - p).
+    double ssr = 0.0;
+    for (std::size_t i = 0; i < n; ++i) ssr += r[i] * r[i];
+    const double dof = double(n) - double(P);
+    s2 = dof > 0 ? ssr / dof : 0.0;
+    e.residual_rms_v = std::sqrt(s2);
   }
-  const double dof = (robust == BaselineRobust::huber ? wsum : double(n)) - double(P);
-  const double s2 = dof > 0 ? ssr / dof : 0.0;
   e.ok = true;
   e.t0_s = x_centre;
-  e.residual_rms_v = std::sqrt(s2);
   e.a_v = y_ref + beta[0];
   e.b_v_per_s = beta[1] / u_scale;
   e.var_b = s2 * inv[1][1] / (u_scale * u_scale);

@@ -6,7 +6,9 @@
 // Huber's M-estimator by iteratively reweighted least squares (P. J. Huber,
 // "Robust estimation of a location parameter", Ann. Math. Statist. 35, 1964;
 // tuning constant 1.345 and scale MAD/0.6745, the usual choices), which
-// leaves glitches (spikes, a relay bounce) nearly without weight.
+// leaves glitches (spikes, a relay bounce) nearly without weight; its
+// covariance is Huber's asymptotic one (psi-clipped residuals), so glitches
+// do not inflate the stated slope error.
 //
 // The caller adds points (x in seconds, y in volts) and asks for a fit. x is
 // taken relative to the first point and scaled inside, so long absolute times
@@ -30,7 +32,7 @@ struct BaselineEstimate {
   double c_v_per_s2 = 0.0;  // 0 for the linear model
   // Covariance of (b, c); cov_cc = cov_bc = 0 for the linear model.
   double var_b = 0.0, cov_bc = 0.0, var_c = 0.0;
-  double residual_rms_v = 0.0;  // s, the fit's residual standard deviation
+  double residual_rms_v = 0.0;  // s, the fit's residual standard deviation (robust: the scale MAD/0.6745)
   std::size_t n = 0;            // points used
   std::size_t downweighted = 0; // robust fit: points given weight < 1
   double slope_at(double t_s) const { return b_v_per_s + 2.0 * c_v_per_s2 * (t_s - t0_s); }
