@@ -23,14 +23,18 @@ int ResetScheduler::second_of_day_utc(double unix_s) {
 
 void ResetScheduler::request_zero_window(double seconds) { zero_requested_s_ = seconds > 0 ? seconds : 0.0; }
 
-void ResetScheduler::ask_reset(double t, const std::string& why, std::vector<ScheduleAction>& out) {
-  if (pending_) return;
-  if (resets_asked_ > 0 && t - last_reset_s_ < settings_.min_spacing_s) return;
+bool ResetScheduler::ask_reset(double t, const std::string& why, std::vector<ScheduleAction>& out) {
+  if (pending_) return true;  // already asked; the retry timer follows it
+  if (resets_asked_ > 0 && t - last_reset_s_ < settings_.min_spacing_s) {
+    ++resets_refused_;
+    return false;
+  }
   out.push_back({ScheduleDecision::reset_now, why});
   pending_ = true;
   pending_since_s_ = t;
   pending_reason_ = why;
   ++resets_asked_;
+  return true;
 }
 
 void ResetScheduler::observe(double t, double utc, double v, std::uint8_t status, std::vector<ScheduleAction>& out) {
@@ -45,7 +49,10 @@ void ResetScheduler::observe(double t, double utc, double v, std::uint8_t status
     board_resetting_ = true;
     pending_ = false;
     last_reset_s_ = t;
-    armed_ = false;
+    // A discharged capacitor is below any re-arm level: arm again now. (The
+    // next observation may come a whole block later, already above the re-arm
+    // level; waiting to see the output low would miss the next crossing.)
+    armed_ = true;
     last_utc_ = utc;
     return;
   }
@@ -85,10 +92,9 @@ void ResetScheduler::observe(double t, double utc, double v, std::uint8_t status
   const double level = std::fabs(v) / settings_.full_scale_v;
   if (settings_.threshold_fraction > 0) {
     if (!armed_ && level < settings_.rearm_fraction) armed_ = true;
-    if (armed_ && level >= settings_.threshold_fraction) {
-      armed_ = false;
-      ask_reset(t, "threshold", out);
-    }
+    // Disarmed only once a reset is really asked: a crossing inside
+    // min_spacing_s is tried again at the next observation.
+    if (armed_ && level >= settings_.threshold_fraction && ask_reset(t, "threshold", out)) armed_ = false;
   }
   if (reset_requested_) {
     reset_requested_ = false;

@@ -9,13 +9,17 @@
 // Policies, any combination:
 //   interval   - a reset when interval_s of board time have passed since the last one;
 //   threshold  - a reset when |V| reaches threshold_fraction of full scale; re-armed
-//                only once |V| falls below rearm_fraction (hysteresis, so a noisy
-//                output near the level cannot trigger a burst);
+//                by the reset itself, or (when no reset followed) only once |V|
+//                falls below rearm_fraction (hysteresis, so a noisy output near
+//                the level cannot trigger a burst); output_v should be the
+//                block's largest |V|, so a crossing inside a block is not missed;
 //   calendar   - at daily or weekly UTC times: zero relay on for zero_window_s (a
 //                zero-window drift measurement), off, then a reset;
 //   command    - request_reset() / request_zero_window() from the operator.
 // A reset asked for but not seen in the status within command_timeout_s is asked
-// again; no two resets are asked closer than min_spacing_s.
+// again; no two resets are asked closer than min_spacing_s (a request inside
+// that spacing is counted in resets_refused(); a command is dropped, a
+// threshold crossing is tried again at the next observation).
 #include <cstdint>
 #include <string>
 #include <vector>
@@ -49,7 +53,7 @@ class ResetScheduler {
  public:
   explicit ResetScheduler(ResetScheduleSettings settings);
 
-  // Call for every sample block (or every sample); output_v is the latest output.
+  // Call for every sample block (or every sample); output_v is the block's largest |output|.
   void observe(double board_time_s, double utc_unix, double output_v, std::uint8_t status,
                std::vector<ScheduleAction>& out);
   void request_reset() { reset_requested_ = true; }
@@ -57,13 +61,15 @@ class ResetScheduler {
 
   bool in_zero_window() const { return zero_until_s_ >= 0; }
   std::uint64_t resets_asked() const { return resets_asked_; }
+  std::uint64_t resets_refused() const { return resets_refused_; }
 
   // Day of week (0 = Monday) and second of day of a Unix time, UTC (1970-01-01 was a Thursday).
   static int weekday_utc(double unix_s);
   static int second_of_day_utc(double unix_s);
 
  private:
-  void ask_reset(double t, const std::string& why, std::vector<ScheduleAction>& out);
+  // False when min_spacing_s refuses it.
+  bool ask_reset(double t, const std::string& why, std::vector<ScheduleAction>& out);
 
   ResetScheduleSettings settings_;
   bool started_ = false;
@@ -78,6 +84,7 @@ class ResetScheduler {
   double zero_until_s_ = -1.0;  // board time the current zero window ends; <0 none
   bool board_resetting_ = false;
   std::uint64_t resets_asked_ = 0;
+  std::uint64_t resets_refused_ = 0;
 };
 
 }  // namespace accrue::chain
