@@ -6,6 +6,16 @@
 // The standard errors use the fit's residual rms, but never less than
 // `noise_floor_v` (the ADC's quantisation LSB/sqrt(12)): a noise-free line
 // still has quantisation error at its ends.
+//
+// A straight line is only right while the input is steady. When the input
+// changes inside the window (a beam spill starting, a slow sample rate), the
+// line's value at the end is biased, always towards less change, so the
+// error would pile up over thousands of segments. So the window is tested
+// first: if the line's residuals are too large for the noise (a chi-square
+// test; the noise comes from the window's second differences, which a steady
+// ramp does not touch and one change of input barely moves), the half farther
+// from the end is dropped, and again, down to the last 2 samples (whose line
+// is the end sample itself and the last step's rate).
 #include <cstddef>
 #include <cstdint>
 #include <vector>
@@ -19,6 +29,7 @@ struct EndEstimate {
   double value_se_v = 0.0;
   double rate_v_per_s = 0.0;
   double rate_se_v_per_s = 0.0;
+  std::size_t points = 0;  // samples the line was fitted to (fewer than the window after a change of input)
 };
 
 class EndWindows {
@@ -39,8 +50,8 @@ class EndWindows {
     std::uint64_t index;
     double volts;
   };
-  EndEstimate fit_at(const std::vector<Point>& points, std::size_t begin, std::size_t n, std::uint64_t at,
-                     double period_s) const;
+  static constexpr double kLackOfFitSigmas = 3.0;
+  EndEstimate fit_at(const std::vector<Point>& nearest_first, std::uint64_t at, double period_s) const;
   std::size_t window_;
   double noise_floor_v_;
   std::vector<Point> head_;
