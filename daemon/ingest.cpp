@@ -142,6 +142,7 @@ void Ingest::start_run(const BoardIdentity& id, double receive_unix, std::option
     if (storage::Status s = writer_.ensure_calibration(c, cal); !s.ok())
       log_.error("channel " + std::to_string(c) + ": cannot record calibration: " + s.message);
     auto chain = std::make_unique<chain::ChannelChain>(cal, settings_c);
+    std::optional<chain::ChainState> start_state;
     if (auto it = carried_.find(c); it != carried_.end()) {
       chain::ChainState state = it->second;
       if (!resumed) {
@@ -151,7 +152,10 @@ void Ingest::start_run(const BoardIdentity& id, double receive_unix, std::option
         state.last_index = 0;
       }
       chain->resume(state);
+      start_state = state;
     }
+    // Derivation 1's record of how this chain starts, so the run can be recomputed exactly.
+    if (!resumed && batch_.run_start) batch_.run_channels.push_back({c, cal.id, settings_c, start_state});
     run.chains.push_back(std::move(chain));
     storage::ChannelRows rows;
     rows.channel = c;

@@ -6,10 +6,20 @@
 #include <string>
 #include <vector>
 
+#include "daemon/chain/channel_chain.hpp"
 #include "daemon/chain/records.hpp"
 #include "protocol/messages.hpp"
 
 namespace accrue::storage {
+
+// What one channel's chain starts a run with: stored as derivation 1's
+// derivation_channel row so the run can be recomputed exactly later.
+struct RunChannelStart {
+  int channel = 0;
+  std::int64_t calibration_id = 0;
+  chain::ChainSettings settings;
+  std::optional<chain::ChainState> start_state;  // a total carried from the run before
+};
 
 struct RunStart {
   std::int64_t run_id = 0;
@@ -52,6 +62,7 @@ struct EventRow {
 
 struct Batch {
   std::optional<RunStart> run_start;
+  std::vector<RunChannelStart> run_channels;  // with run_start; empty: derivation 1 is recorded without settings
   std::vector<RawBlockRow> raw;
   std::vector<ChannelRows> channels;
   std::vector<EventRow> events;

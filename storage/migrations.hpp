@@ -10,7 +10,7 @@
 
 namespace accrue::storage {
 
-inline constexpr int kSchemaVersion = 3;
+inline constexpr int kSchemaVersion = 4;
 
 // Read-only: fails with a message naming both versions when the file is newer.
 Status check_schema_version(Database& db, int& version_out);

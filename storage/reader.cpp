@@ -114,10 +114,11 @@ void add_cost(const Statement& st, WindowResult& out) {
 // One index found with a single index seek (ORDER BY ... LIMIT 1).
 Status seek_index(Database& db, const char* sql, std::int64_t run_id, int channel, std::int64_t bound,
                   std::optional<std::uint64_t>& found, std::optional<std::uint64_t>& samples, WindowResult& cost) {
+  // ?4 is the derivation read (cost.derivation, set by window()).
   found.reset();
   Statement st;
   if (Status s = db.prepare(sql, st); !s.ok()) return s;
-  st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, bound);
+  st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, bound).bind(4, std::int64_t(cost.derivation));
   bool row = false;
   if (Status s = st.step(&row); !s.ok()) return s;
   if (row) {
@@ -137,17 +138,18 @@ Status Reader::window(const WindowQuery& q, WindowResult& out) {
   if (Status s = q.run_id ? run_by_id(*q.run_id, run) : latest_run(run); !s.ok()) return s;
   if (!run) return Status::error(SQLITE_NOTFOUND, q.run_id ? "no such run" : "no runs recorded yet");
   out.run = *run;
+  if (Status s = resolve_derivation(run->run_id, q.derivation, out.derivation); !s.ok()) return s;
   // The window's real extent, by index seeks (cost independent of the span).
   std::optional<std::uint64_t> lo, hi, point_samples, ignored;
   if (Status s = seek_index(*db_,
-                            "SELECT first_index, samples FROM series_point WHERE run_id = ? AND channel = ? AND"
-                            " first_index >= ? ORDER BY first_index LIMIT 1",
+                            "SELECT first_index, samples FROM series_point WHERE run_id = ?1 AND derivation = ?4 AND"
+                            " channel = ?2 AND first_index >= ?3 ORDER BY first_index LIMIT 1",
                             run->run_id, q.channel, clamp_index(q.from_index), lo, point_samples, out);
       !s.ok())
     return s;
   if (Status s = seek_index(*db_,
-                            "SELECT first_index, samples FROM series_point WHERE run_id = ? AND channel = ? AND"
-                            " first_index <= ? ORDER BY first_index DESC LIMIT 1",
+                            "SELECT first_index, samples FROM series_point WHERE run_id = ?1 AND derivation = ?4 AND"
+                            " channel = ?2 AND first_index <= ?3 ORDER BY first_index DESC LIMIT 1",
                             run->run_id, q.channel, clamp_index(q.to_index), hi, ignored, out);
       !s.ok())
     return s;
@@ -161,21 +163,24 @@ Status Reader::window(const WindowQuery& q, WindowResult& out) {
     if (Status s = db_->prepare(
             "SELECT o.first_index, o.samples, o.min_v, o.max_v, o.sum_v / o.samples, o.last_v, o.total, o.total_u,"
             " c.quantity, c.unit FROM rollup o JOIN calibration c USING (calibration_id)"
-            " WHERE o.run_id = ? AND o.channel = ? AND o.width_s = ? AND o.bucket BETWEEN ? AND ? ORDER BY o.bucket",
+            " WHERE o.run_id = ?1 AND o.derivation = ?6 AND o.channel = ?2 AND o.width_s = ?3 AND o.bucket BETWEEN ?4 AND ?5"
+            " ORDER BY o.bucket",
             st);
         !s.ok())
       return s;
     st.bind(1, run->run_id).bind(2, std::int64_t(q.channel)).bind(3, *width);
-    st.bind(4, clamp_index(*lo / w)).bind(5, clamp_index(*hi / w));
+    st.bind(4, clamp_index(*lo / w)).bind(5, clamp_index(*hi / w)).bind(6, std::int64_t(out.derivation));
   } else {
     if (Status s = db_->prepare(
             "SELECT p.first_index, p.samples, p.min_v, p.max_v, p.mean_v, p.last_v, p.total, p.total_u, c.quantity, c.unit"
             " FROM series_point p JOIN calibration c USING (calibration_id)"
-            " WHERE p.run_id = ? AND p.channel = ? AND p.first_index BETWEEN ? AND ? ORDER BY p.first_index",
+            " WHERE p.run_id = ?1 AND p.derivation = ?5 AND p.channel = ?2 AND p.first_index BETWEEN ?3 AND ?4"
+            " ORDER BY p.first_index",
             st);
         !s.ok())
       return s;
     st.bind(1, run->run_id).bind(2, std::int64_t(q.channel)).bind(3, std::int64_t(*lo)).bind(4, std::int64_t(*hi));
+    st.bind(5, std::int64_t(out.derivation));
   }
   std::vector<WindowPoint> rows;
   for (bool row = true;;) {

@@ -55,6 +55,7 @@ struct WindowPoint {
 struct WindowQuery {
   int channel = 0;
   std::optional<std::int64_t> run_id;  // default: the newest run
+  std::optional<int> derivation;       // default: the run's newest usable derivation
   std::uint64_t from_index = 0;
   std::uint64_t to_index = UINT64_MAX;  // inclusive
   std::size_t max_points = 1000;
@@ -62,6 +63,7 @@ struct WindowQuery {
 
 struct WindowResult {
   RunInfo run;
+  int derivation = 1;  // the derivation read
   std::string quantity, unit;
   std::vector<WindowPoint> points;
   std::int64_t tier_width_s = 0;  // rollup width read; 0: series points
@@ -81,6 +83,28 @@ struct RawBlock {
   std::vector<std::int32_t> codes;  // interleaved by sample
 };
 
+// One derivation of a run (schema.sql, table derivation) and its channels.
+struct DerivationChannelInfo {
+  int channel = 0;
+  std::int64_t calibration_id = 0;
+  std::string baseline;     // "linear none", "quadratic huber", "unknown"
+  std::string settings;     // JSON chain settings; empty when not recorded
+  std::string start_state;  // JSON chain state; empty: the run started from zero
+  std::optional<std::uint64_t> last_index;
+  std::optional<double> total, std_uncertainty;
+  std::uint32_t segments = 0, flags = 0;
+  std::string quantity, unit;
+  double quantity_per_volt = 0.0;
+};
+
+struct DerivationInfo {
+  std::int64_t run_id = 0;
+  int derivation = 0;
+  std::optional<int> parent;
+  std::string created_utc, who, reason, changes, state, finished_utc;
+  std::vector<DerivationChannelInfo> channels;
+};
+
 class Reader {
  public:
   static Status open(const std::string& path, std::unique_ptr<Reader>& out);
@@ -90,6 +114,12 @@ class Reader {
   Status window(const WindowQuery& q, WindowResult& out);
   // Raw blocks of a run whose first_index lies in [from_index, to_index], decoded.
   Status raw_blocks(std::int64_t run_id, std::uint64_t from_index, std::uint64_t to_index, std::vector<RawBlock>& out);
+
+  // Every derivation of a run, oldest first, with its channels (reader_derivations.cpp).
+  Status derivations(std::int64_t run_id, std::vector<DerivationInfo>& out);
+  // `wanted` if the run has it in a readable state (recorded or complete),
+  // else the newest readable one when `wanted` is empty; SQLITE_NOTFOUND otherwise.
+  Status resolve_derivation(std::int64_t run_id, std::optional<int> wanted, int& out);
 
  private:
   explicit Reader(std::unique_ptr<Database> db) : db_(std::move(db)) {}

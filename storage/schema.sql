@@ -1,4 +1,4 @@
--- accrue storage schema, version 3 (PRAGMA user_version = 3).
+-- accrue storage schema, version 4 (PRAGMA user_version = 4).
 --
 -- This file documents the whole current layout. The daemon never runs it: it
 -- applies storage/migrations/NNNN_*.sql in order (embedded at build time) and
@@ -9,6 +9,12 @@
 -- indices; a run's clock model (utc_at_index0, sample_period_s) maps them to
 -- UTC. Voltages are integrator output volts; quantities are in the unit of the
 -- calibration the row names.
+--
+-- Derived rows (series_point, rollup, baseline, segment) belong to one
+-- derivation of a run: derivation 1 is what the daemon computed while it
+-- recorded; reprocessing the stored raw blocks (storage/reprocess.hpp, `accrue
+-- reprocess`) adds 2, 3, ... beside it and never changes another. A query that
+-- names no derivation reads the newest usable one (view derivation_newest).
 
 -- A board as it identified itself.
 CREATE TABLE board (
@@ -44,6 +50,43 @@ CREATE TABLE calibration (
   definition        TEXT    NOT NULL    -- JSON: adc, front end, sensor
 );
 
+-- One derivation of one run and its provenance.
+CREATE TABLE derivation (
+  run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  derivation        INTEGER NOT NULL,   -- 1: recorded live; 2, 3, ...: reprocessed
+  parent            INTEGER,            -- the derivation it was recomputed from (NULL for 1)
+  created_utc       TEXT    NOT NULL,
+  who               TEXT    NOT NULL,   -- the daemon, or the user who asked for the reprocessing
+  reason            TEXT    NOT NULL,
+  changes           TEXT    NOT NULL,   -- JSON: what differs from the parent (calibration, baseline, windows)
+  state             TEXT    NOT NULL,   -- recorded, running, complete, failed
+  finished_utc      TEXT,
+  PRIMARY KEY (run_id, derivation)
+) WITHOUT ROWID;
+
+-- What each channel of a derivation was computed with, and its total.
+CREATE TABLE derivation_channel (
+  run_id            INTEGER NOT NULL,
+  derivation        INTEGER NOT NULL,
+  channel           INTEGER NOT NULL,
+  calibration_id    INTEGER NOT NULL REFERENCES calibration(calibration_id),
+  baseline          TEXT    NOT NULL,   -- linear or quadratic, then none or huber (e.g. "quadratic huber")
+  settings          TEXT,               -- JSON chain settings (NULL: not recorded, runs from before version 3)
+  start_state       TEXT,               -- JSON chain state the run started from (a carried total); NULL: zero
+  last_index        INTEGER,            -- the total below is at this sample (NULL until known)
+  total             REAL,
+  std_uncertainty   REAL,               -- k = 1
+  segments          INTEGER,
+  flags             INTEGER,
+  PRIMARY KEY (run_id, derivation, channel),
+  FOREIGN KEY (run_id, derivation) REFERENCES derivation(run_id, derivation)
+) WITHOUT ROWID;
+
+-- The derivation a query reads when it names none: the newest usable one.
+CREATE VIEW derivation_newest AS
+SELECT run_id, MAX(derivation) AS derivation FROM derivation
+WHERE state IN ('recorded', 'complete') GROUP BY run_id;
+
 -- Raw ADC codes, a block per frame as the board sent it (not a row per sample).
 -- Codes are interleaved by sample (s0c0 s0c1 ... s1c0 ...).
 -- encoding 1: packed little-endian 24-bit two's complement (version 1 files).
@@ -64,6 +107,7 @@ CREATE TABLE raw_block (
 -- Derived series: one point per channel per series interval (1 s by default).
 CREATE TABLE series_point (
   run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  derivation        INTEGER NOT NULL DEFAULT 1,   -- see table derivation
   channel           INTEGER NOT NULL,
   first_index       INTEGER NOT NULL,
   samples           INTEGER NOT NULL,
@@ -74,12 +118,13 @@ CREATE TABLE series_point (
   total             REAL    NOT NULL,   -- running total at the point's last sample
   total_u           REAL    NOT NULL,   -- its standard uncertainty (k = 1)
   calibration_id    INTEGER NOT NULL REFERENCES calibration(calibration_id),
-  PRIMARY KEY (run_id, channel, first_index)
+  PRIMARY KEY (run_id, derivation, channel, first_index)
 ) WITHOUT ROWID;
 
 -- Drift fits on zero windows.
 CREATE TABLE baseline (
   run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  derivation        INTEGER NOT NULL DEFAULT 1,   -- see table derivation
   channel           INTEGER NOT NULL,
   ordinal           INTEGER NOT NULL,
   first_index       INTEGER NOT NULL,
@@ -89,12 +134,13 @@ CREATE TABLE baseline (
   slope_v_per_s     REAL    NOT NULL,
   slope_se_v_per_s  REAL    NOT NULL,
   residual_rms_v    REAL    NOT NULL,
-  PRIMARY KEY (run_id, channel, ordinal)
+  PRIMARY KEY (run_id, derivation, channel, ordinal)
 ) WITHOUT ROWID;
 
 -- Reset-to-reset segments and what each contributed.
 CREATE TABLE segment (
   run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  derivation        INTEGER NOT NULL DEFAULT 1,   -- see table derivation
   channel           INTEGER NOT NULL,
   ordinal           INTEGER NOT NULL,
   first_index       INTEGER NOT NULL,
@@ -111,7 +157,7 @@ CREATE TABLE segment (
   total_after       REAL    NOT NULL,
   total_u_after     REAL    NOT NULL,
   calibration_id    INTEGER NOT NULL REFERENCES calibration(calibration_id),
-  PRIMARY KEY (run_id, channel, ordinal)
+  PRIMARY KEY (run_id, derivation, channel, ordinal)
 ) WITHOUT ROWID;
 
 CREATE TABLE event (
@@ -126,7 +172,9 @@ CREATE TABLE event (
 CREATE INDEX event_by_run ON event(run_id, sample_index);
 
 -- The running total per channel, committed in the same transaction as the
--- data it covers. state is the chain's resume state as JSON.
+-- data it covers. state is the chain's resume state as JSON. This is the live
+-- recording's (derivation 1's) state; derivation_channel holds every
+-- derivation's total.
 CREATE TABLE total_checkpoint (
   channel           INTEGER PRIMARY KEY,
   run_id            INTEGER NOT NULL REFERENCES run(run_id),
@@ -146,6 +194,7 @@ CREATE TABLE total_checkpoint (
 -- sample_period_s): a series point belongs to the bucket of its first sample.
 CREATE TABLE rollup (
   run_id            INTEGER NOT NULL REFERENCES run(run_id),
+  derivation        INTEGER NOT NULL DEFAULT 1,   -- see table derivation
   channel           INTEGER NOT NULL,
   width_s           INTEGER NOT NULL,   -- 10, 60, 600, 3600, 21600, 86400
   bucket            INTEGER NOT NULL,
@@ -160,11 +209,11 @@ CREATE TABLE rollup (
   total             REAL    NOT NULL,   -- running total at the bucket's last sample
   total_u           REAL    NOT NULL,
   calibration_id    INTEGER NOT NULL REFERENCES calibration(calibration_id),
-  PRIMARY KEY (run_id, channel, width_s, bucket)
+  PRIMARY KEY (run_id, derivation, channel, width_s, bucket)
 ) WITHOUT ROWID;
 
 CREATE VIEW rollup_utc AS
-SELECT o.run_id, o.channel, o.width_s,
+SELECT o.run_id, o.derivation, o.channel, o.width_s,
        strftime('%Y-%m-%dT%H:%M:%fZ', r.utc_at_index0 + o.first_index * r.sample_period_s, 'unixepoch') AS utc,
        o.samples, o.min_v, o.max_v, o.sum_v / o.samples AS mean_v, o.last_v, o.total, o.total_u, c.unit
 FROM rollup o JOIN run r USING (run_id) JOIN calibration c USING (calibration_id);
@@ -179,13 +228,13 @@ FROM raw_block b JOIN run r USING (run_id);
 -- Views for analysts (sqlite3 shell, pandas): UTC times and units.
 -- rollup_utc and raw_block_utc are defined above with their tables.
 CREATE VIEW series_utc AS
-SELECT p.run_id, p.channel,
+SELECT p.run_id, p.derivation, p.channel,
        strftime('%Y-%m-%dT%H:%M:%fZ', r.utc_at_index0 + p.first_index * r.sample_period_s, 'unixepoch') AS utc,
        p.mean_v, p.min_v, p.max_v, p.total, p.total_u, c.unit
 FROM series_point p JOIN run r USING (run_id) JOIN calibration c USING (calibration_id);
 
 CREATE VIEW segment_utc AS
-SELECT s.run_id, s.channel, s.ordinal,
+SELECT s.run_id, s.derivation, s.channel, s.ordinal,
        strftime('%Y-%m-%dT%H:%M:%fZ', r.utc_at_index0 + s.first_index * r.sample_period_s, 'unixepoch') AS start_utc,
        (s.last_index - s.first_index) * r.sample_period_s AS length_s,
        s.quantity, s.gap_before_v, s.flags, s.total_after, c.unit

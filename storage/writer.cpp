@@ -5,6 +5,8 @@
 #include <nlohmann/json.hpp>
 
 #include "storage/block_codec.hpp"
+#include "storage/calibration_json.hpp"
+#include "storage/chain_settings_json.hpp"
 #include "storage/chain_state_json.hpp"
 #include "storage/rollup.hpp"
 #include "storage/migrations.hpp"
@@ -29,7 +31,7 @@ std::size_t Batch::derived_bytes() const {
 
 struct Writer::Statements {
   Statement board, board_id, run, run_end, raw, series, segment, baseline, event, checkpoint, calibration, rollup,
-      period;
+      period, derivation, derivation_channel, derivation_total, derivation_end;
 };
 
 namespace {
@@ -141,13 +143,26 @@ Status Writer::prepare_statements() {
       {&st_->rollup,
        "INSERT INTO rollup(run_id, channel, width_s, bucket, first_index, last_point_index, points, samples, min_v,"
        " max_v, sum_v, last_v, total, total_u, calibration_id) VALUES(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)"
-       " ON CONFLICT(run_id, channel, width_s, bucket) DO UPDATE SET last_point_index = excluded.last_point_index,"
+       " ON CONFLICT(run_id, derivation, channel, width_s, bucket) DO UPDATE SET last_point_index = excluded.last_point_index,"
        " points = points + excluded.points, samples = samples + excluded.samples, min_v = min(min_v, excluded.min_v),"
        " max_v = max(max_v, excluded.max_v), sum_v = sum_v + excluded.sum_v, last_v = excluded.last_v,"
        " total = excluded.total, total_u = excluded.total_u, calibration_id = excluded.calibration_id"
        // Points already folded in (a re-sent stretch) are not counted twice.
        " WHERE excluded.first_index > rollup.last_point_index"},
       {&st_->period, "SELECT sample_period_s FROM run WHERE run_id = ?"},
+      // The live recording is derivation 1 of its run (see schema.sql).
+      {&st_->derivation,
+       "INSERT OR IGNORE INTO derivation(run_id, derivation, parent, created_utc, who, reason, changes, state)"
+       " VALUES(?, 1, NULL, ?, 'accrued', 'recorded live', '{}', 'recorded')"},
+      {&st_->derivation_channel,
+       "INSERT OR REPLACE INTO derivation_channel(run_id, derivation, channel, calibration_id, baseline, settings,"
+       " start_state) VALUES(?, 1, ?, ?, ?, ?, ?)"},
+      {&st_->derivation_total,
+       "INSERT INTO derivation_channel(run_id, derivation, channel, calibration_id, baseline, last_index, total,"
+       " std_uncertainty, segments, flags) VALUES(?1, 1, ?2, ?3, 'unknown', ?4, ?5, ?6, ?7, ?8)"
+       " ON CONFLICT(run_id, derivation, channel) DO UPDATE SET last_index = ?4, total = ?5, std_uncertainty = ?6,"
+       " segments = ?7, flags = ?8"},
+      {&st_->derivation_end, "UPDATE derivation SET finished_utc = ? WHERE run_id = ? AND derivation = 1"},
       {&st_->checkpoint,
        "INSERT OR REPLACE INTO total_checkpoint(channel, run_id, last_index, total, std_uncertainty, segments, flags,"
        " calibration_id, state, committed_utc) VALUES(?,?,?,?,?,?,?,?,?,?)"},
@@ -156,20 +171,6 @@ Status Writer::prepare_statements() {
     if (Status s = db_->prepare(item.sql, *item.st); !s.ok()) return s;
   }
   return Status::success();
-}
-
-static std::string calibration_definition(const chain::Calibration& cal) {
-  const nlohmann::json def = {
-      {"adc", {{"bits", cal.adc.bits}, {"zero_code", cal.adc.zero_code}, {"full_scale_v", cal.adc.full_scale_v},
-               {"gain", cal.adc.gain}, {"bipolar", cal.adc.bipolar}}},
-      {"front_end", {{"r1_ohm", cal.front_end.r1_ohm}, {"c_farad", cal.front_end.c_farad},
-                     {"r2_ohm", cal.front_end.r2_ohm}, {"inverting", cal.front_end.inverting}}},
-      {"sensor", std::string(chain::to_string(cal.sensor))},
-      {"sensor_model", {{"turns", cal.sensor_model.turns}, {"area_m2", cal.sensor_model.area_m2},
-                        {"mutual_inductance_h", cal.sensor_model.mutual_inductance_h},
-                        {"sensitivity_v_per_m_per_s", cal.sensor_model.sensitivity_v_per_m_per_s},
-                        {"charge_sensitivity", cal.sensor_model.charge_sensitivity}}}};
-  return def.dump();
 }
 
 Status Writer::load_calibrations() {
@@ -561,6 +562,18 @@ Status Writer::write_batch(const Batch& b, bool with_raw) {
         .bind(5, r.utc_at_index0);
     if (Status s2 = st.run.run(); !s2.ok()) return s2;
     period_by_run_[r.run_id] = r.board.sample_period_s;
+    st.derivation.bind(1, r.run_id).bind(2, rfc3339_utc(r.started_unix));
+    if (Status s2 = st.derivation.run(); !s2.ok()) return s2;
+    for (const RunChannelStart& c : b.run_channels) {
+      st.derivation_channel.bind(1, r.run_id)
+          .bind(2, std::int64_t(c.channel))
+          .bind(3, c.calibration_id)
+          .bind(4, baseline_text(c.settings))
+          .bind(5, chain_settings_to_json(c.settings));
+      if (c.start_state) st.derivation_channel.bind(6, chain_state_to_json(*c.start_state));
+      else st.derivation_channel.bind_null(6);
+      if (Status s2 = st.derivation_channel.run(); !s2.ok()) return s2;
+    }
   }
   std::vector<std::uint8_t> encoded;
   for (const auto& r : b.raw) {
@@ -646,6 +659,15 @@ Status Writer::write_batch(const Batch& b, bool with_raw) {
           .bind(9, chain_state_to_json(t.state))
           .bind(10, rfc3339_utc(clock_()));
       if (Status s = st.checkpoint.run(); !s.ok()) return s;
+      st.derivation_total.bind(1, c.run_id)
+          .bind(2, ch)
+          .bind(3, c.calibration_id)
+          .bind(4, std::int64_t(t.last_index))
+          .bind(5, t.total)
+          .bind(6, t.std_uncertainty)
+          .bind(7, std::int64_t(t.segments))
+          .bind(8, std::int64_t(t.flags));
+      if (Status s = st.derivation_total.run(); !s.ok()) return s;
     }
   }
   for (const auto& e : b.events) {
@@ -658,6 +680,8 @@ Status Writer::write_batch(const Batch& b, bool with_raw) {
   if (b.run_end) {
     st.run_end.bind(1, rfc3339_utc(b.run_end->ended_unix)).bind(2, b.run_end->reason).bind(3, b.run_end->run_id);
     if (Status s = st.run_end.run(); !s.ok()) return s;
+    st.derivation_end.bind(1, rfc3339_utc(b.run_end->ended_unix)).bind(2, b.run_end->run_id);
+    if (Status s = st.derivation_end.run(); !s.ok()) return s;
   }
   return Status::success();
 }

@@ -14,6 +14,13 @@ using storage::Status;
 namespace {
 std::int64_t clamp64(std::uint64_t v) { return std::int64_t(std::min<std::uint64_t>(v, INT64_MAX)); }
 
+// The derivation a query reads: ?9 when bound, else the run's (?1) newest usable one.
+#define ACCRUE_READ_DERIVATION "COALESCE(?9, (SELECT MAX(derivation) FROM derivation WHERE run_id = ?1 AND state IN ('recorded', 'complete')))"
+void bind_derivation(Statement& st, std::optional<int> derivation) {
+  if (derivation) st.bind(9, std::int64_t(*derivation));
+  else st.bind_null(9);
+}
+
 Status each_row(Statement& st, const std::function<void(const Statement&)>& f) {
   for (bool row = true;;) {
     if (Status s = st.step(&row); !s.ok()) return s;
@@ -33,10 +40,12 @@ Status StoreQueries::open(const std::string& path, std::unique_ptr<StoreQueries>
 namespace {
 // One index seek: the first (or last) series point of the channel in [from, to].
 Status seek_point(storage::Database& db, const char* sql, std::int64_t run_id, int channel, std::uint64_t from_index,
-                  std::uint64_t to_index, std::optional<std::uint64_t>& index, std::uint64_t& samples) {
+                  std::uint64_t to_index, std::optional<std::uint64_t>& index, std::uint64_t& samples,
+                  std::optional<int> derivation) {
   Statement st;
   if (Status s = db.prepare(sql, st); !s.ok()) return s;
   st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(from_index)).bind(4, clamp64(to_index));
+  bind_derivation(st, derivation);
   bool row = false;
   if (Status s = st.step(&row); !s.ok()) return s;
   if (row) index = std::uint64_t(st.column_int(0)), samples = std::uint64_t(st.column_int(1));
@@ -59,7 +68,8 @@ std::uint64_t tier_for(std::uint64_t bucket_samples, std::uint64_t stride, doubl
 
 Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t from_index, std::uint64_t to_index,
                                  std::size_t max_points, std::size_t page_points, std::uint64_t bucket_samples,
-                                 std::optional<std::uint64_t> start, WindowPage& out) {
+                                 std::optional<std::uint64_t> start, WindowPage& out,
+                                 std::optional<int> derivation) {
   out = WindowPage{};
   double period_s = 0.0;
   {
@@ -75,15 +85,17 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
   std::optional<std::uint64_t> lo, hi;
   std::uint64_t stride = 1, last_samples = 1;
   if (Status s = seek_point(*db_,
-                            "SELECT first_index, samples FROM series_point WHERE run_id = ? AND channel = ?"
-                            " AND first_index BETWEEN ? AND ? ORDER BY first_index LIMIT 1",
-                            run_id, channel, from_index, to_index, lo, stride);
+                            "SELECT first_index, samples FROM series_point WHERE run_id = ?1 AND channel = ?2"
+                            " AND first_index BETWEEN ?3 AND ?4 AND derivation = " ACCRUE_READ_DERIVATION
+                            " ORDER BY first_index LIMIT 1",
+                            run_id, channel, from_index, to_index, lo, stride, derivation);
       !s.ok())
     return s;
   if (Status s = seek_point(*db_,
-                            "SELECT first_index, samples FROM series_point WHERE run_id = ? AND channel = ?"
-                            " AND first_index BETWEEN ? AND ? ORDER BY first_index DESC LIMIT 1",
-                            run_id, channel, from_index, to_index, hi, last_samples);
+                            "SELECT first_index, samples FROM series_point WHERE run_id = ?1 AND channel = ?2"
+                            " AND first_index BETWEEN ?3 AND ?4 AND derivation = " ACCRUE_READ_DERIVATION
+                            " ORDER BY first_index DESC LIMIT 1",
+                            run_id, channel, from_index, to_index, hi, last_samples, derivation);
       !s.ok())
     return s;
   if (!lo || !hi) return Status::success();
@@ -125,12 +137,13 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
   {
     Statement st;
     if (Status s = db_->prepare(
-            "SELECT total FROM series_point WHERE run_id = ? AND channel = ? AND first_index < ?"
-            " ORDER BY first_index DESC LIMIT 1",
+            "SELECT total FROM series_point WHERE run_id = ?1 AND channel = ?2 AND first_index < ?3"
+            " AND derivation = " ACCRUE_READ_DERIVATION " ORDER BY first_index DESC LIMIT 1",
             st);
         !s.ok())
       return s;
     st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(page_begin));
+    bind_derivation(st, derivation);
     bool row = false;
     if (Status s = st.step(&row); !s.ok()) return s;
     if (row) before = st.column_double(0), have_before = true;
@@ -140,7 +153,8 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
     if (Status s = db_->prepare(
             "SELECT o.first_index, o.samples, o.min_v, o.max_v, o.sum_v, o.last_v, o.total, o.total_u, c.quantity, c.unit"
             " FROM rollup o JOIN calibration c USING (calibration_id)"
-            " WHERE o.run_id = ? AND o.channel = ? AND o.width_s = ? AND o.bucket BETWEEN ? AND ? ORDER BY o.bucket",
+            " WHERE o.run_id = ?1 AND o.channel = ?2 AND o.width_s = ?3 AND o.bucket BETWEEN ?4 AND ?5"
+            " AND o.derivation = " ACCRUE_READ_DERIVATION " ORDER BY o.bucket",
             st);
         !s.ok())
       return s;
@@ -150,12 +164,14 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
     if (Status s = db_->prepare(
             "SELECT p.first_index, p.samples, p.min_v, p.max_v, p.mean_v * p.samples, p.last_v, p.total, p.total_u,"
             " c.quantity, c.unit FROM series_point p JOIN calibration c USING (calibration_id)"
-            " WHERE p.run_id = ? AND p.channel = ? AND p.first_index BETWEEN ? AND ? ORDER BY p.first_index",
+            " WHERE p.run_id = ?1 AND p.channel = ?2 AND p.first_index BETWEEN ?3 AND ?4"
+            " AND p.derivation = " ACCRUE_READ_DERIVATION " ORDER BY p.first_index",
             st);
         !s.ok())
       return s;
     st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(page_begin)).bind(4, clamp64(page_end));
   }
+  bind_derivation(st, derivation);
   double sum_v = 0.0;
   std::uint64_t current = UINT64_MAX;
   auto close_bucket = [&] {
@@ -195,19 +211,21 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
 }
 
 Status StoreQueries::segments(std::int64_t run_id, int channel, std::uint64_t from_index, std::uint64_t to_index,
-                              std::int64_t after_ordinal, std::size_t limit, std::vector<SegmentRow>& out) {
+                              std::int64_t after_ordinal, std::size_t limit, std::vector<SegmentRow>& out,
+                              std::optional<int> derivation) {
   out.clear();
   Statement st;
   if (Status s = db_->prepare(
           "SELECT ordinal, first_index, last_index, start_v, end_v, drift_v, gap_before_v, gap_before_u_v,"
           " end_points_u_v, quantity, baseline_ordinal, flags, total_after, total_u_after, calibration_id FROM segment"
-          " WHERE run_id = ? AND channel = ? AND last_index >= ? AND first_index <= ? AND ordinal > ?"
-          " ORDER BY ordinal LIMIT ?",
+          " WHERE run_id = ?1 AND channel = ?2 AND last_index >= ?3 AND first_index <= ?4 AND ordinal > ?5"
+          " AND derivation = " ACCRUE_READ_DERIVATION " ORDER BY ordinal LIMIT ?6",
           st);
       !s.ok())
     return s;
   st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(from_index)).bind(4, clamp64(to_index));
   st.bind(5, after_ordinal).bind(6, std::int64_t(limit));
+  bind_derivation(st, derivation);
   return each_row(st, [&](const Statement& r) {
     SegmentRow s;
     s.ordinal = r.column_int(0);

@@ -74,11 +74,15 @@ class StoreQueries {
   // about max_points buckets) starting at `start` (or the window's first
   // point), at most `page_points` of them. The first page fixes lo, hi and
   // bucket_samples; a continuation passes them back unchanged.
+  // `derivation` (here and in segments()): the run's derivation to read;
+  // nullopt reads the newest usable one (storage::Reader::resolve_derivation).
   storage::Status window_page(std::int64_t run_id, int channel, std::uint64_t from_index, std::uint64_t to_index,
                               std::size_t max_points, std::size_t page_points, std::uint64_t bucket_samples,
-                              std::optional<std::uint64_t> start, WindowPage& out);
+                              std::optional<std::uint64_t> start, WindowPage& out,
+                              std::optional<int> derivation = std::nullopt);
   storage::Status segments(std::int64_t run_id, int channel, std::uint64_t from_index, std::uint64_t to_index,
-                           std::int64_t after_ordinal, std::size_t limit, std::vector<SegmentRow>& out);
+                           std::int64_t after_ordinal, std::size_t limit, std::vector<SegmentRow>& out,
+                           std::optional<int> derivation = std::nullopt);
   storage::Status events(const EventFilter& f, std::vector<EventOut>& out);
   // channel nullopt: every channel. Ordered by channel, then version.
   storage::Status calibrations(std::optional<int> channel, std::vector<CalibrationRow>& out);
