@@ -480,15 +480,13 @@ Status Job::recompute(const ReprocessProgressFn& progress, ReprocessResult& out)
         return Status::error(SQLITE_CORRUPT, "run " + std::to_string(req_.run_id) + " block at " + std::to_string(first) +
                                                  " has " + std::to_string(channel_count) + " channel(s); the derivation has " +
                                                  std::to_string(channels_.back().channel + 1));
-      if (expected && first > *expected) {
-        ++out.index_gaps;
-        out.gap_samples += first - *expected;
-      }
       // A daemon restart: its chains started again from the state committed last, which is the
       // state here (the checkpoint went in with the blocks before), and the open segment it had
       // stored provisionally stayed as it was.
+      bool resumed = false;
       for (; next_resume < resumes.size() && resumes[next_resume] <= first; ++next_resume) {
         if (!expected) continue;
+        resumed = true;
         ++out.resumes;
         for (Channel& ch : channels_) {
           const chain::TotalSnapshot t = ch.chain->snapshot();
@@ -496,6 +494,13 @@ Status Job::recompute(const ReprocessProgressFn& progress, ReprocessResult& out)
           ch.chain = std::make_unique<chain::ChannelChain>(ch.calibration, ch.settings);
           ch.chain->resume(t.state);
         }
+      }
+      if (expected && first > *expected && !resumed) {
+        // Samples missing between stored blocks (lost on the wire, as the daemon saw them, or raw
+        // blocks not stored): the chain ends the open segment there, as the daemon's ingest does.
+        ++out.index_gaps;
+        out.gap_samples += first - *expected;
+        for (Channel& ch : channels_) ch.chain->on_missing_samples(ch.out);
       }
       const std::uint64_t last = first + samples - (samples ? 1 : 0);
       for (Channel& ch : channels_) {

@@ -19,9 +19,12 @@
 //    the derivation is "running" and no query reads it by default; at the end
 //    it is "complete" and becomes the run's default; on an error or a
 //    cancel it is "failed", its rows are deleted, and the status says why;
-//  - holes in the stored raw blocks (shed, or past raw retention) are counted
-//    in the result: the recomputation bridges them as the chain bridges any
-//    index gap, so such a derivation is not the same as the live one there.
+//  - holes between stored raw blocks are counted in the result and handled as
+//    the daemon handles a sample-index gap (ChannelChain::on_missing_samples);
+//    where the daemon saw samples whose raw blocks were not stored (shed under
+//    overload or a full disk), the derivation differs from the live one there;
+//  - a daemon restart within the run (a "run_resumed" event) is replayed as the
+//    daemon did it: the chains start again from the state at that point.
 //
 // Offline use (accrue reprocess --database) is for a file no daemon is
 // writing: new calibration versions get the next free id, which a running
