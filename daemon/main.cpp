@@ -13,6 +13,7 @@
 #include <thread>
 
 #include "daemon/api/hub.hpp"
+#include "daemon/reprocess_jobs.hpp"
 #include "daemon/api/link_control.hpp"
 #include "daemon/api/methods.hpp"
 #include "daemon/api/server.hpp"
@@ -352,6 +353,16 @@ int main(int argc, char** argv) {
     }
     return j;
   }, hub, &control, method_settings);
+  // Reprocessing stored runs (API method "reprocess"), on its own thread; never the run being recorded.
+  ReprocessJobs reprocess_jobs(
+      io, config.database, *writer,
+      [&]() -> std::optional<std::int64_t> {
+        const nlohmann::json st = ingest.status();
+        if (st.contains("run") && st["run"].is_object()) return st["run"].value("run_id", std::int64_t(0));
+        return std::nullopt;
+      },
+      unix_now);
+  methods.set_reprocessor(&reprocess_jobs);
   api::ServerSettings server_settings;
   server_settings.socket_path = config.socket_path;
   server_settings.socket_group = config.socket_group;

@@ -7,6 +7,7 @@
 #include "daemon/api/token.hpp"
 #include "daemon/api/utf8.hpp"
 #include "daemon/api/window_text.hpp"
+#include "storage/chain_settings_json.hpp"
 #include "storage/utc.hpp"
 
 namespace accrue::daemon::api {
@@ -97,12 +98,14 @@ const std::set<std::string> kSelects = {"all", "volts", "quantity", "total", "ra
 // Continuation of a window: everything the next page needs, as plain text.
 struct WindowCursor {
   std::int64_t run_id = 0;
+  int derivation = 0;  // 0: a w1 token, from before derivations (the newest is read)
   int channel = 0;
   std::uint64_t lo = 0, hi = 0, bucket = 1, next = 0;
   std::string select = "all";
 };
 std::string encode(const WindowCursor& c) {
-  return "w1." + std::to_string(c.run_id) + "." + std::to_string(c.channel) + "." + std::to_string(c.lo) + "." +
+  return "w2." + std::to_string(c.run_id) + "." + std::to_string(c.derivation) + "." + std::to_string(c.channel) + "." +
+         std::to_string(c.lo) + "." +
          std::to_string(c.hi) + "." + std::to_string(c.bucket) + "." + std::to_string(c.next) + "." + c.select;
 }
 std::optional<WindowCursor> decode(const std::string& text) {
@@ -111,10 +114,16 @@ std::optional<WindowCursor> decode(const std::string& text) {
   int ch = 0, used = 0;
   unsigned long long lo = 0, hi = 0, bucket = 0, next = 0;
   char select[16] = {0};
-  if (std::sscanf(text.c_str(), "w1.%lld.%d.%llu.%llu.%llu.%llu.%15[a-z]%n", &run, &ch, &lo, &hi, &bucket, &next, select,
-                  &used) != 7 ||
-      std::size_t(used) != text.size())
+  int derivation = 0;
+  if (std::sscanf(text.c_str(), "w2.%lld.%d.%d.%llu.%llu.%llu.%llu.%15[a-z]%n", &run, &derivation, &ch, &lo, &hi, &bucket,
+                  &next, select, &used) == 8 &&
+      std::size_t(used) == text.size() && derivation > 0) {
+    c.derivation = derivation;
+  } else if (std::sscanf(text.c_str(), "w1.%lld.%d.%llu.%llu.%llu.%llu.%15[a-z]%n", &run, &ch, &lo, &hi, &bucket, &next,
+                         select, &used) != 7 ||
+             std::size_t(used) != text.size()) {
     return std::nullopt;
+  }
   c.run_id = run, c.channel = ch, c.lo = lo, c.hi = hi, c.bucket = bucket, c.next = next, c.select = select;
   if (!kSelects.count(c.select) || c.bucket == 0 || c.lo > c.hi || c.next < c.lo || c.next > c.hi || ch < 0 || ch > 254)
     return std::nullopt;
@@ -218,9 +227,12 @@ Reply Methods::call(const std::string& method, const json& params, const json& i
     return result_reply(id, status_());
   }
   if (method == "totals") {
-    if (auto k = unknown_key(params, {})) return bad_params(id, *k);
+    if (auto k = unknown_key(params, {"run_id", "derivation"})) return bad_params(id, *k);
+    if (!params.empty()) return run_totals(params, id);
     return totals(id);
   }
+  if (method == "derivations") return derivations(params, id);
+  if (method == "reprocess") return reprocess(params, id, peer);
   if (method == "runs") {
     if (auto k = unknown_key(params, {})) return bad_params(id, *k);
     return runs(id);
@@ -247,7 +259,17 @@ json Methods::totals(const json& id) {
   if (storage::Status s = reader_->checkpoints(rows); !s.ok()) return store_error(id, s.message);
   json out = json::array();
   for (const auto& c : rows) {
+    // Queries read the newest derivation: a reprocessed one stands in for the recording's.
+    int derivation = 1;
+    if (storage::Status s = reader_->resolve_derivation(c.run_id, std::nullopt, derivation); s.ok() && derivation != 1) {
+      json one = run_totals(json{{"run_id", c.run_id}, {"derivation", derivation}}, id);
+      if (one.contains("result"))
+        for (const auto& ch : one["result"]["channels"])
+          if (ch.value("channel", -1) == c.channel) out.push_back(ch);
+      continue;
+    }
     out.push_back({{"channel", c.channel},
+                   {"derivation", 1},
                    {"run_id", c.run_id},
                    {"quantity", c.quantity},
                    {"unit", c.unit},
@@ -275,6 +297,7 @@ json Methods::runs(const json& id) {
     out.push_back({{"run_id", run.run_id},
                    {"board_serial", run.board_serial},
                    {"sample_period_s", run.sample_period_s},
+                   {"utc_at_index0", run.utc_at_index0},
                    {"started_utc", run.started_utc},
                    {"ended_utc", run.ended_utc.empty() ? json(nullptr) : json(run.ended_utc)},
                    {"end_reason", run.end_reason}});
@@ -358,7 +381,7 @@ bool Methods::resolve_run(const json& params, const json& id, storage::RunInfo& 
 }
 
 Reply Methods::window(const json& params, const json& id) {
-  if (auto k = unknown_key(params, {"channel", "run_id", "from", "to", "max_points", "select", "continuation"}))
+  if (auto k = unknown_key(params, {"channel", "run_id", "derivation", "from", "to", "max_points", "select", "continuation"}))
     return bad_params(id, *k);
   WindowCursor cursor;
   std::size_t max_points = 1000;
@@ -373,6 +396,8 @@ Reply Methods::window(const json& params, const json& id) {
     cursor = *c;
     start = cursor.next;
     if (!resolve_run(json{{"run_id", cursor.run_id}}, id, run, err)) return err;
+    const json named = cursor.derivation ? json{{"derivation", cursor.derivation}} : json::object();
+    if (!resolve_derivation(named, id, run, cursor.derivation, err)) return err;
   } else {
     std::string why;
     auto channel = int_param(params, "channel", 0, 254, why);
@@ -385,6 +410,7 @@ Reply Methods::window(const json& params, const json& id) {
     max_points = std::size_t(points.value_or(1000));
     if (!resolve_run(params, id, run, err)) return err;
     cursor.run_id = run.run_id;
+    if (!resolve_derivation(params, id, run, cursor.derivation, err)) return err;
     cursor.lo = index_bound(params, "from", run, why).value_or(0);
     cursor.hi = index_bound(params, "to", run, why).value_or(INT64_MAX);
     if (!why.empty()) return bad_params(id, why);
@@ -393,7 +419,7 @@ Reply Methods::window(const json& params, const json& id) {
   }
   WindowPage page;
   if (storage::Status s = queries_->window_page(cursor.run_id, cursor.channel, cursor.lo, cursor.hi, max_points,
-                                                settings_.page_points, cursor.bucket, start, page);
+                                                settings_.page_points, cursor.bucket, start, page, cursor.derivation);
       !s.ok())
     return store_error(id, s.message);
   const std::string& sel = cursor.select;
@@ -405,6 +431,7 @@ Reply Methods::window(const json& params, const json& id) {
     cont = encode(next);
   }
   const json result = {{"run_id", run.run_id},
+                       {"derivation", cursor.derivation},
                        {"channel", cursor.channel},
                        {"select", sel},
                        {"quantity", page.quantity},
@@ -436,7 +463,8 @@ Reply Methods::window(const json& params, const json& id) {
 }
 
 json Methods::segments(const json& params, const json& id) {
-  if (auto k = unknown_key(params, {"channel", "run_id", "from", "to", "after", "limit"})) return bad_params(id, *k);
+  if (auto k = unknown_key(params, {"channel", "run_id", "derivation", "from", "to", "after", "limit"}))
+    return bad_params(id, *k);
   std::string why;
   auto channel = int_param(params, "channel", 0, 254, why);
   auto after = int_param(params, "after", 0, INT64_MAX, why);
@@ -445,12 +473,15 @@ json Methods::segments(const json& params, const json& id) {
   storage::RunInfo run;
   json err;
   if (!resolve_run(params, id, run, err)) return err;
+  int derivation = 1;
+  if (!resolve_derivation(params, id, run, derivation, err)) return err;
   const std::uint64_t from = index_bound(params, "from", run, why).value_or(0);
   const std::uint64_t to = index_bound(params, "to", run, why).value_or(INT64_MAX);
   if (!why.empty()) return bad_params(id, why);
   const std::size_t n = std::size_t(limit.value_or((long long)settings_.page_rows));
   std::vector<SegmentRow> rows;
-  if (storage::Status s = queries_->segments(run.run_id, int(channel.value_or(0)), from, to, after.value_or(0), n + 1, rows);
+  if (storage::Status s = queries_->segments(run.run_id, int(channel.value_or(0)), from, to, after.value_or(0), n + 1, rows,
+                                             derivation);
       !s.ok())
     return store_error(id, s.message);
   const bool more = rows.size() > n;
@@ -476,6 +507,7 @@ json Methods::segments(const json& params, const json& id) {
                     {"calibration_id", s.calibration_id}});
   }
   return result_reply(id, {{"run_id", run.run_id},
+                           {"derivation", derivation},
                            {"channel", channel.value_or(0)},
                            {"segments", list},
                            {"next_after", more ? json(rows.back().ordinal) : json(nullptr)}});
@@ -607,6 +639,180 @@ json Methods::unsubscribe(const json& params, const json& id, Peer& peer) {
   if (!why.empty() || !sub) return bad_params(id, why.empty() ? "subscription is required" : why);
   if (!hub_.unsubscribe(peer.sink_ptr, *sub)) return bad_params(id, "no such subscription on this connection");
   return result_reply(id, {{"subscription", *sub}, {"active", false}});
+}
+
+// --- Derivations and reprocessing (docs/api.md, "Derivations") ---
+
+bool Methods::resolve_derivation(const json& params, const json& id, const storage::RunInfo& run, int& derivation,
+                                 json& err) {
+  std::string why;
+  auto wanted = int_param(params, "derivation", 1, 1000000, why);
+  if (!why.empty()) {
+    err = bad_params(id, why);
+    return false;
+  }
+  if (storage::Status s = reader_->resolve_derivation(run.run_id, wanted ? std::optional<int>(int(*wanted)) : std::nullopt,
+                                                      derivation);
+      !s.ok()) {
+    err = s.code == SQLITE_NOTFOUND ? bad_params(id, s.message) : store_error(id, s.message);
+    return false;
+  }
+  return true;
+}
+
+json Methods::run_totals(const json& params, const json& id) {
+  storage::RunInfo run;
+  json err;
+  int derivation = 1;
+  if (!resolve_run(params, id, run, err) || !resolve_derivation(params, id, run, derivation, err)) return err;
+  std::vector<storage::DerivationInfo> ds;
+  if (storage::Status s = reader_->derivations(run.run_id, ds); !s.ok()) return store_error(id, s.message);
+  json out = json::array();
+  for (const auto& d : ds) {
+    if (d.derivation != derivation) continue;
+    for (const auto& c : d.channels) {
+      const double total = c.total.value_or(0.0), u = c.std_uncertainty.value_or(0.0);
+      out.push_back({{"channel", c.channel},
+                     {"run_id", run.run_id},
+                     {"derivation", derivation},
+                     {"quantity", c.quantity},
+                     {"unit", c.unit},
+                     {"total", c.total ? json(total) : json(nullptr)},
+                     {"std_uncertainty", c.std_uncertainty ? json(u) : json(nullptr)},
+                     {"expanded_uncertainty_k2", c.std_uncertainty ? json(2.0 * u) : json(nullptr)},
+                     {"quantity_per_volt", c.quantity_per_volt},
+                     {"segments", c.segments},
+                     {"flags", c.flags},
+                     {"last_index", c.last_index ? json(*c.last_index) : json(nullptr)},
+                     {"calibration_id", c.calibration_id},
+                     {"baseline", c.baseline}});
+    }
+  }
+  return result_reply(id, {{"channels", out}});
+}
+
+json Methods::derivations(const json& params, const json& id) {
+  if (auto k = unknown_key(params, {"run_id"})) return bad_params(id, *k);
+  storage::RunInfo run;
+  json err;
+  if (!resolve_run(params, id, run, err)) return err;
+  std::vector<storage::DerivationInfo> ds;
+  if (storage::Status s = reader_->derivations(run.run_id, ds); !s.ok()) return store_error(id, s.message);
+  int newest = 0;
+  (void)reader_->resolve_derivation(run.run_id, std::nullopt, newest);
+  json list = json::array();
+  for (const auto& d : ds) {
+    json changes = json::parse(d.changes, nullptr, false);
+    if (changes.is_discarded()) changes = d.changes;
+    json channels = json::array();
+    for (const auto& c : d.channels)
+      channels.push_back({{"channel", c.channel},
+                          {"calibration_id", c.calibration_id},
+                          {"baseline", c.baseline},
+                          {"unit", c.unit},
+                          {"total", c.total ? json(*c.total) : json(nullptr)},
+                          {"std_uncertainty", c.std_uncertainty ? json(*c.std_uncertainty) : json(nullptr)},
+                          {"segments", c.segments}});
+    list.push_back({{"derivation", d.derivation},
+                    {"parent", d.parent ? json(*d.parent) : json(nullptr)},
+                    {"created_utc", d.created_utc},
+                    {"finished_utc", d.finished_utc.empty() ? json(nullptr) : json(d.finished_utc)},
+                    {"who", d.who},
+                    {"reason", d.reason},
+                    {"state", d.state},
+                    {"changes", changes},
+                    {"channels", channels}});
+  }
+  return result_reply(id, {{"run_id", run.run_id}, {"newest", newest ? json(newest) : json(nullptr)}, {"derivations", list}});
+}
+
+namespace {
+
+// One entry of "changes"; false with `why` on a bad value.
+bool parse_change(const json& j, storage::ChannelChange& c, std::string& why) {
+  if (!j.is_object()) return why = "each change must be an object", false;
+  static const std::set<std::string> known = {"channel",        "c_farad",         "r1_ohm",        "r2_ohm",
+                                              "gain",           "zero_code",       "baseline_model", "baseline_robust",
+                                              "quiet_windows",  "drop_baselines"};
+  for (auto it = j.begin(); it != j.end(); ++it)
+    if (!known.count(it.key())) return why = "unknown change " + it.key(), false;
+  if (j.contains("channel")) {
+    if (!j["channel"].is_number_integer() || j["channel"].get<long long>() < 0 || j["channel"].get<long long>() > 254)
+      return why = "channel must be a whole number 0..254", false;
+    c.channel = j["channel"].get<int>();
+  }
+  for (const auto& [key, field] : {std::pair<const char*, std::optional<double>*>{"c_farad", &c.c_farad},
+                                   {"r1_ohm", &c.r1_ohm}, {"r2_ohm", &c.r2_ohm}, {"gain", &c.gain}}) {
+    if (!j.contains(key)) continue;
+    if (!j[key].is_number()) return why = std::string(key) + " must be a number", false;
+    *field = j[key].get<double>();
+  }
+  if (j.contains("zero_code")) {
+    if (!j["zero_code"].is_number_integer()) return why = "zero_code must be a whole number", false;
+    c.zero_code = j["zero_code"].get<std::int32_t>();
+  }
+  if (j.contains("baseline_model")) {
+    chain::BaselineModel m;
+    if (!j["baseline_model"].is_string() || !storage::parse_baseline_model(j["baseline_model"].get<std::string>(), m))
+      return why = "baseline_model must be linear or quadratic", false;
+    c.baseline_model = m;
+  }
+  if (j.contains("baseline_robust")) {
+    chain::BaselineRobust r;
+    if (!j["baseline_robust"].is_string() || !storage::parse_baseline_robust(j["baseline_robust"].get<std::string>(), r))
+      return why = "baseline_robust must be none or huber", false;
+    c.baseline_robust = r;
+  }
+  if (j.contains("quiet_windows")) {
+    if (!j["quiet_windows"].is_array()) return why = "quiet_windows must be a list of [first_index, last_index]", false;
+    for (const auto& q : j["quiet_windows"]) {
+      if (!q.is_array() || q.size() != 2 || !q[0].is_number_unsigned() || !q[1].is_number_unsigned())
+        return why = "quiet_windows must be a list of [first_index, last_index]", false;
+      c.add_quiet_windows.push_back({q[0].get<std::uint64_t>(), q[1].get<std::uint64_t>()});
+    }
+  }
+  if (j.contains("drop_baselines")) {
+    if (!j["drop_baselines"].is_array()) return why = "drop_baselines must be a list of baseline ordinals", false;
+    for (const auto& d : j["drop_baselines"]) {
+      if (!d.is_number_unsigned() || d.get<std::uint64_t>() < 1 || d.get<std::uint64_t>() > UINT32_MAX)
+        return why = "drop_baselines must be a list of baseline ordinals", false;
+      c.drop_baselines.push_back(d.get<std::uint32_t>());
+    }
+  }
+  return true;
+}
+
+}  // namespace
+
+json Methods::reprocess(const json& params, const json& id, Peer& peer) {
+  if (auto k = unknown_key(params, {"run_id", "parent", "who", "reason", "changes", "progress"})) return bad_params(id, *k);
+  std::string why;
+  auto run_id = int_param(params, "run_id", 1, INT64_MAX, why);
+  auto parent = int_param(params, "parent", 1, 1000000, why);
+  if (!why.empty()) return bad_params(id, why);
+  if (!run_id) return bad_params(id, "run_id is required");
+  for (const char* key : {"who", "reason"})
+    if (params.contains(key) && (!params[key].is_string() || params[key].get<std::string>().size() > 1000))
+      return bad_params(id, std::string(key) + " must be text of at most 1000 bytes");
+  if (params.contains("progress") && !params["progress"].is_boolean()) return bad_params(id, "progress must be true or false");
+  storage::ReprocessRequest req;
+  req.run_id = *run_id;
+  if (parent) req.parent = int(*parent);
+  req.who = params.value("who", "api client");
+  req.reason = params.value("reason", "");
+  if (params.contains("changes")) {
+    if (!params["changes"].is_array() || params["changes"].size() > 255) return bad_params(id, "changes must be a list");
+    for (const auto& c : params["changes"]) {
+      storage::ChannelChange change;
+      if (!parse_change(c, change, why)) return bad_params(id, why);
+      req.changes.push_back(std::move(change));
+    }
+  }
+  if (!reprocessor_) return error_reply(id, rpc_error::control_refused, "reprocessing is not available");
+  if (!peer.sink_ptr) return error_reply(id, rpc_error::internal_error, "this connection cannot take notifications");
+  ControlResult r = reprocessor_->start(std::move(req), peer.sink, params.value("progress", true));
+  if (!r.ok) return error_reply(id, rpc_error::control_refused, "reprocess refused: " + r.message);
+  return result_reply(id, r.detail);
 }
 
 }  // namespace accrue::daemon::api

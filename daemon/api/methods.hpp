@@ -16,6 +16,7 @@
 
 #include "daemon/api/control.hpp"
 #include "daemon/api/hub.hpp"
+#include "daemon/api/reprocessor.hpp"
 #include "daemon/api/reply.hpp"
 #include "daemon/api/sink.hpp"
 #include "daemon/api/store_queries.hpp"
@@ -61,6 +62,8 @@ class Methods {
   // A whole request line: parses it and dispatches.
   std::optional<std::string> handle_line(std::string_view line, Peer& peer);
   std::optional<Reply> handle(const nlohmann::json& request, Peer& peer);
+  // Enables "reprocess" (otherwise it answers -32004); not owned, may be null.
+  void set_reprocessor(Reprocessor* reprocessor) { reprocessor_ = reprocessor; }
 
  private:
   Reply call(const std::string& method, const nlohmann::json& params, const nlohmann::json& id, Peer& peer);
@@ -77,6 +80,13 @@ class Methods {
   bool open_store(std::string& why);
   // The run a request names (run_id) or the newest; false with an error reply.
   bool resolve_run(const nlohmann::json& params, const nlohmann::json& id, storage::RunInfo& run, nlohmann::json& err);
+  // The derivation of `run` a request names ("derivation") or the newest readable; false with an error reply.
+  bool resolve_derivation(const nlohmann::json& params, const nlohmann::json& id, const storage::RunInfo& run,
+                          int& derivation, nlohmann::json& err);
+  // methods_derivations.cpp
+  nlohmann::json run_totals(const nlohmann::json& params, const nlohmann::json& id);
+  nlohmann::json derivations(const nlohmann::json& params, const nlohmann::json& id);
+  nlohmann::json reprocess(const nlohmann::json& params, const nlohmann::json& id, Peer& peer);
 
   std::string database_;
   StatusSource status_;
@@ -85,6 +95,7 @@ class Methods {
   MethodSettings settings_;
   std::unique_ptr<storage::Reader> reader_;
   std::unique_ptr<StoreQueries> queries_;
+  Reprocessor* reprocessor_ = nullptr;
 };
 
 }  // namespace accrue::daemon::api

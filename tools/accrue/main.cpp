@@ -6,6 +6,7 @@
 
 #include "tools/accrue/commands.hpp"
 #include "tools/accrue/plan_command.hpp"
+#include "tools/accrue/reprocess_command.hpp"
 
 namespace {
 
@@ -24,6 +25,10 @@ commands:
                               the committed total beside a simulator's truth
   wait [--timeout S]          wait until the newest run has ended and all of it
                               is committed
+  reprocess (--run ID | --from T --to T) [--c C] [--baseline M] [--drop-baseline N] ...
+                              recompute a stored run with a corrected
+                              calibration or baseline as a new derivation,
+                              the original kept; see accrue reprocess --help
   plan --r1 R --c C [--r2 R] --input MIN:MAX [options]
                               plan an integrator front end (response,
                               drift, reset schedule, floors); needs no
@@ -76,6 +81,7 @@ int main(int argc, char** argv) {
   if (command == "compare") return cmd_compare(o, args);
   if (command == "wait") return cmd_wait(o, args);
   if (command == "plan") return cmd_plan(o.json, args);
+  if (command == "reprocess") return cmd_reprocess(o, args);
   std::fprintf(stderr, "accrue: unknown command %s (see --help)\n", command.c_str());
   return 2;
 }

@@ -70,13 +70,48 @@ RpcResult RpcClient::call(const std::string& method, const nlohmann::json& param
         r.error = j["error"].value("message", std::string("error"));
         return r;
       }
-      if (!j.contains("id") || j["id"] != id) continue;  // a notification or a stale reply
+      if (!j.contains("id") || j["id"] != id) {  // a notification or a stale reply
+        if (on_notification && j.contains("method") && !j.contains("id")) on_notification(j);
+        continue;
+      }
       r.ok = true;
       r.result = j.value("result", nlohmann::json());
       return r;
     }
     if (pending_.size() > max_reply_bytes_) {
       r.error = "reply too large";
+      return r;
+    }
+    const ssize_t n = ::recv(fd_, buf, sizeof buf, 0);
+    if (n <= 0) {
+      r.error = n == 0 ? "daemon closed the connection" : std::string("receive failed: ") + std::strerror(errno);
+      return r;
+    }
+    pending_.append(buf, std::size_t(n));
+  }
+}
+
+RpcResult RpcClient::wait_notification(const std::string& method) {
+  RpcResult r;
+  if (!connect(r.error)) return r;
+  char buf[65536];
+  for (;;) {
+    const auto nl = pending_.find('\n');
+    if (nl != std::string::npos) {
+      const std::string line = pending_.substr(0, nl);
+      pending_.erase(0, nl + 1);
+      const auto j = nlohmann::json::parse(line, nullptr, false);
+      if (j.is_discarded() || !j.is_object() || !j.contains("method") || j.contains("id")) continue;
+      if (j["method"] == method) {
+        r.ok = true;
+        r.result = j.value("params", nlohmann::json());
+        return r;
+      }
+      if (on_notification) on_notification(j);
+      continue;
+    }
+    if (pending_.size() > max_reply_bytes_) {
+      r.error = "message too large";
       return r;
     }
     const ssize_t n = ::recv(fd_, buf, sizeof buf, 0);

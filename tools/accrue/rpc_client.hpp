@@ -2,6 +2,7 @@
 // RpcClient: a blocking JSON-RPC 2.0 client for accrued's Unix socket, for
 // the command-line tool. One request at a time, one reply line each; replies
 // longer than max_reply_bytes or slower than timeout_s are errors.
+#include <functional>
 #include <optional>
 #include <string>
 
@@ -23,6 +24,10 @@ class RpcClient {
   RpcClient(const RpcClient&) = delete;
   RpcClient& operator=(const RpcClient&) = delete;
   RpcResult call(const std::string& method, const nlohmann::json& params = nlohmann::json::object());
+  // Called with each notification (a message with a method and no id) that arrives while call() waits.
+  std::function<void(const nlohmann::json&)> on_notification;
+  // Waits for a notification of `method` and gives its params as the result; others go to on_notification.
+  RpcResult wait_notification(const std::string& method);
 
  private:
   bool connect(std::string& why);
