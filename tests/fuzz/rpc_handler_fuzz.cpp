@@ -27,11 +27,19 @@ struct Fixture {
   std::unique_ptr<daemon::api::Methods> methods;
 };
 
+Fixture* fixture = nullptr;  // lives for the whole fuzzing process
+
 Fixture* make_fixture() {
-  auto* f = new Fixture;  // lives for the whole fuzzing process
+  auto* f = new Fixture;
   std::string t = (std::filesystem::temp_directory_path() / "accrue-rpc-fuzz-XXXXXX").string();
   if (!::mkdtemp(t.data())) std::abort();
   f->dir = t;
+  fixture = f;
+  // libFuzzer ends with exit(): the store's directory goes with the process.
+  std::atexit([] {
+    std::error_code ec;
+    std::filesystem::remove_all(fixture->dir, ec);
+  });
   const std::string db = t + "/fuzz.db";
   std::unique_ptr<storage::Writer> w;
   if (!storage::Writer::open(db, {}, [] { return testing::crash::kUtc0; }, w,
