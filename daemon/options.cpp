@@ -383,7 +383,8 @@ std::vector<ConfigError> load_config_text(const std::string& text, DaemonConfig&
   json j;
   try {
     j = json::parse(text, nullptr, true, /*ignore_comments=*/true);
-  } catch (const json::parse_error& e) {
+  } catch (const json::exception& e) {
+    // parse_error, and out_of_range for a number too large for a double (found by fuzz.config_loader).
     c.fail("(file)", std::string("is not valid JSON: ") + e.what());
     return errors;
   }

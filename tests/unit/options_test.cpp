@@ -203,3 +203,12 @@ TEST_CASE("options: text-line boards and link framing are carried") {
   CHECK(config.flow_control == FlowControl::hardware);
   CHECK(config.device == "usb-id:0403:6015");
 }
+
+TEST_CASE("options: a number too large for a double is a config error, not an exception") {
+  // Found by tests/fuzz/config_loader_fuzz.cpp: nlohmann::json throws out_of_range (406) here, not parse_error.
+  DaemonConfig config;
+  std::vector<ConfigError> errors;
+  REQUIRE_NOTHROW(errors = load_config_text(R"({ "device": "/dev/ttyUSB0", "baud": 1E1111111111110000000000000000 })", config));
+  REQUIRE(errors.size() == 1);
+  CHECK(errors[0].key == "(file)");
+}
