@@ -7,7 +7,9 @@
 #include <iostream>
 #include <thread>
 
+#include "tools/accrue/cli_args.hpp"
 #include "tools/accrue/rpc_client.hpp"
+#include "tools/accrue/window_fetch.hpp"
 
 namespace accrue::client {
 
@@ -28,33 +30,6 @@ std::string format_si(double value, const std::string& unit, int digits) {
   }
   return std::to_string(value) + " " + unit;
 }
-
-namespace {
-
-int fail(const RpcResult& r) {
-  std::fprintf(stderr, "accrue: %s\n", r.error.c_str());
-  return 1;
-}
-
-bool parse_flag(const std::vector<std::string>& args, std::size_t& i, const char* name, std::string& out) {
-  if (args[i] != name) return false;
-  if (i + 1 >= args.size()) {
-    std::fprintf(stderr, "accrue: %s needs a value\n", name);
-    std::exit(2);
-  }
-  out = args[++i];
-  return true;
-}
-
-json bound_value(const std::string& text) {
-  // A whole number is a sample index; anything else is passed as RFC 3339 text
-  // or, when it parses as a number with a fraction, as Unix seconds.
-  const auto j = json::parse(text, nullptr, false);
-  if (!j.is_discarded() && j.is_number()) return j;
-  return text;
-}
-
-}  // namespace
 
 int cmd_status(const CommonOptions& o, const std::vector<std::string>&) {
   RpcClient c(o.socket_path);
@@ -131,21 +106,13 @@ int cmd_runs(const CommonOptions& o, const std::vector<std::string>&) {
 }
 
 int cmd_window(const CommonOptions& o, const std::vector<std::string>& args) {
-  json params = json::object();
-  for (std::size_t i = 0; i < args.size(); ++i) {
-    std::string v;
-    if (parse_flag(args, i, "--channel", v)) params["channel"] = std::stoi(v);
-    else if (parse_flag(args, i, "--run", v)) params["run_id"] = std::stoll(v);
-    else if (parse_flag(args, i, "--from", v)) params["from"] = bound_value(v);
-    else if (parse_flag(args, i, "--to", v)) params["to"] = bound_value(v);
-    else if (parse_flag(args, i, "--points", v)) params["max_points"] = std::stoi(v);
-    else {
-      std::fprintf(stderr, "accrue window: unknown option %s\n", args[i].c_str());
-      return 2;
-    }
+  const WindowOptions w = parse_window_options(args);
+  if (!w.rest.empty()) {
+    std::fprintf(stderr, "accrue window: unknown option %s\n", w.rest[0].c_str());
+    return 2;
   }
   RpcClient c(o.socket_path);
-  auto r = c.call("window", params);
+  auto r = fetch_window(c, w.params);
   if (!r.ok) return fail(r);
   if (o.json) {
     std::cout << r.result.dump(2) << "\n";

@@ -19,6 +19,20 @@ int cmd_runs(const CommonOptions& o, const std::vector<std::string>& args);
 int cmd_window(const CommonOptions& o, const std::vector<std::string>& args);
 int cmd_compare(const CommonOptions& o, const std::vector<std::string>& args);
 int cmd_wait(const CommonOptions& o, const std::vector<std::string>& args);
+// commands_store.cpp
+int cmd_channels(const CommonOptions& o, const std::vector<std::string>& args);
+int cmd_calibration(const CommonOptions& o, const std::vector<std::string>& args);
+int cmd_segments(const CommonOptions& o, const std::vector<std::string>& args);
+int cmd_events(const CommonOptions& o, const std::vector<std::string>& args);
+// commands_control.cpp
+int cmd_reset(const CommonOptions& o, const std::vector<std::string>& args);
+int cmd_zero(const CommonOptions& o, const std::vector<std::string>& args);
+int cmd_quiet(const CommonOptions& o, const std::vector<std::string>& args);
+// commands_live.cpp
+int cmd_tail(const CommonOptions& o, const std::vector<std::string>& args);
+// commands_files.cpp
+int cmd_export(const CommonOptions& o, const std::vector<std::string>& args);
+int cmd_plot(const CommonOptions& o, const std::vector<std::string>& args);
 
 // "1.2346 µC" style text for a value in an SI unit.
 std::string format_si(double value, const std::string& unit, int digits = 6);

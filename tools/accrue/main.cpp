@@ -18,9 +18,28 @@ commands:
   status                      link, board, run, live totals and counters
   totals                      committed running total per channel, with U (k=2)
   runs                        board sessions recorded in the store
-  window [--channel N] [--run ID] [--from T] [--to T] [--points N]
+  window [--channel N] [--run ID] [--from T] [--to T] [--points N] [--select S]
                               a window of the derived series; T is a sample
-                              index, Unix seconds (with a fraction) or RFC 3339
+                              index, Unix seconds (with a fraction) or RFC 3339;
+                              S is all, volts, quantity, total or rate
+  export [window options] [--output FILE]
+                              the window as CSV (RFC 4180: CRLF, UTC times,
+                              units in the header); default to stdout
+  plot [window options] [--title TEXT] [--width PX] --output FILE.svg
+                              the window as an SVG picture: running total with
+                              U (k=2), rate, resets, zero/quiet windows, events
+  channels                    channels with their newest calibration and live total
+  calibration [--channel N]   every calibration version
+  segments [--channel N] [--run ID] [--from T] [--to T] [--after K] [--limit N]
+                              reset-to-reset segments and what each contributed
+  events [--kind K]... [--channel N] [--run ID] [--from T] [--to T] [--after E] [--limit N]
+                              board and daemon events
+  tail [--topics values,events] [--channel N]... [--count N] [--seconds S]
+                              live values and events as they come (subscribe)
+  reset                       discharge the integrators now (control)
+  zero start|stop             close or open the zero relay (control)
+  quiet --from T --to T [--channel N] [--note TEXT]
+                              mark an interval with no input (control)
   compare --truth FILE [--max-error-percent X]
                               the committed total beside a simulator's truth
   wait [--timeout S]          wait until the newest run has ended and all of it
@@ -80,6 +99,16 @@ int main(int argc, char** argv) {
   if (command == "window") return cmd_window(o, args);
   if (command == "compare") return cmd_compare(o, args);
   if (command == "wait") return cmd_wait(o, args);
+  if (command == "export") return cmd_export(o, args);
+  if (command == "plot") return cmd_plot(o, args);
+  if (command == "channels") return cmd_channels(o, args);
+  if (command == "calibration") return cmd_calibration(o, args);
+  if (command == "segments") return cmd_segments(o, args);
+  if (command == "events") return cmd_events(o, args);
+  if (command == "tail") return cmd_tail(o, args);
+  if (command == "reset") return cmd_reset(o, args);
+  if (command == "zero") return cmd_zero(o, args);
+  if (command == "quiet") return cmd_quiet(o, args);
   if (command == "plan") return cmd_plan(o.json, args);
   if (command == "reprocess") return cmd_reprocess(o, args);
   std::fprintf(stderr, "accrue: unknown command %s (see --help)\n", command.c_str());

@@ -1,10 +1,13 @@
 #include "tools/accrue/rpc_client.hpp"
 
+#include <poll.h>
 #include <sys/socket.h>
 #include <sys/un.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <cerrno>
+#include <chrono>
 #include <cstring>
 
 namespace accrue::client {
@@ -54,72 +57,110 @@ RpcResult RpcClient::call(const std::string& method, const nlohmann::json& param
     }
     done += std::size_t(w);
   }
+  for (;;) {
+    std::string reply;
+    if (!read_line(reply, timeout_s_, r.error)) return r;
+    const auto j = nlohmann::json::parse(reply, nullptr, false);
+    if (j.is_discarded() || !j.is_object()) {
+      r.error = "reply is not JSON";
+      return r;
+    }
+    if (!j.contains("id") && j.contains("method")) {  // a notification, not our reply
+      keep(j);
+      continue;
+    }
+    if (j.contains("error")) {
+      r.error_code = j["error"].value("code", 0);
+      r.error = j["error"].value("message", std::string("error"));
+      return r;
+    }
+    if (!j.contains("id") || j["id"] != id) continue;  // a stale reply
+    r.ok = true;
+    r.result = j.value("result", nlohmann::json());
+    return r;
+  }
+}
+
+bool RpcClient::read_line(std::string& line, double timeout_s, std::string& why) {
   char buf[65536];
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
   for (;;) {
     const auto nl = pending_.find('\n');
     if (nl != std::string::npos) {
-      const std::string reply = pending_.substr(0, nl);
+      line = pending_.substr(0, nl);
       pending_.erase(0, nl + 1);
-      const auto j = nlohmann::json::parse(reply, nullptr, false);
-      if (j.is_discarded() || !j.is_object()) {
-        r.error = "reply is not JSON";
-        return r;
-      }
-      if (j.contains("error")) {
-        r.error_code = j["error"].value("code", 0);
-        r.error = j["error"].value("message", std::string("error"));
-        return r;
-      }
-      if (!j.contains("id") || j["id"] != id) {  // a notification or a stale reply
-        if (on_notification && j.contains("method") && !j.contains("id")) on_notification(j);
-        continue;
-      }
-      r.ok = true;
-      r.result = j.value("result", nlohmann::json());
-      return r;
+      return true;
     }
     if (pending_.size() > max_reply_bytes_) {
-      r.error = "reply too large";
-      return r;
+      why = "reply too large";
+      return false;
+    }
+    const double left_ms = std::chrono::duration<double, std::milli>(deadline - std::chrono::steady_clock::now()).count();
+    pollfd p{fd_, POLLIN, 0};
+    const int ready = left_ms <= 0 ? 0 : ::poll(&p, 1, int(std::min(left_ms + 1.0, 2.0e9)));
+    if (ready < 0 && errno == EINTR) continue;
+    if (ready <= 0) {
+      why = ready == 0 ? "timeout" : std::string("poll failed: ") + std::strerror(errno);
+      return false;
     }
     const ssize_t n = ::recv(fd_, buf, sizeof buf, 0);
     if (n <= 0) {
-      r.error = n == 0 ? "daemon closed the connection" : std::string("receive failed: ") + std::strerror(errno);
-      return r;
+      why = n == 0 ? "daemon closed the connection" : std::string("receive failed: ") + std::strerror(errno);
+      return false;
     }
     pending_.append(buf, std::size_t(n));
   }
 }
 
+void RpcClient::keep(nlohmann::json notification) {
+  if (on_notification) on_notification(notification);
+  notifications_.push_back(std::move(notification));  // also kept: wait_notification may be after it
+}
+
 RpcResult RpcClient::wait_notification(const std::string& method) {
   RpcResult r;
   if (!connect(r.error)) return r;
-  char buf[65536];
+  // One that came while call() waited for its reply.
+  for (auto it = notifications_.begin(); it != notifications_.end(); ++it) {
+    if ((*it)["method"] == method) {
+      r.ok = true;
+      r.result = it->value("params", nlohmann::json());
+      notifications_.erase(notifications_.begin(), it + 1);
+      return r;
+    }
+  }
+  notifications_.clear();  // seen by on_notification already, or of no interest to this wait
   for (;;) {
-    const auto nl = pending_.find('\n');
-    if (nl != std::string::npos) {
-      const std::string line = pending_.substr(0, nl);
-      pending_.erase(0, nl + 1);
-      const auto j = nlohmann::json::parse(line, nullptr, false);
-      if (j.is_discarded() || !j.is_object() || !j.contains("method") || j.contains("id")) continue;
-      if (j["method"] == method) {
-        r.ok = true;
-        r.result = j.value("params", nlohmann::json());
-        return r;
-      }
-      if (on_notification) on_notification(j);
-      continue;
-    }
-    if (pending_.size() > max_reply_bytes_) {
-      r.error = "message too large";
+    std::string line;
+    // A long job sends progress often; the wait itself is bounded by the daemon closing.
+    if (!read_line(line, 365.0 * 86400.0, r.error)) return r;
+    auto j = nlohmann::json::parse(line, nullptr, false);
+    if (j.is_discarded() || !j.is_object() || !j.contains("method") || j.contains("id")) continue;
+    if (j["method"] == method) {
+      r.ok = true;
+      r.result = j.value("params", nlohmann::json());
       return r;
     }
-    const ssize_t n = ::recv(fd_, buf, sizeof buf, 0);
-    if (n <= 0) {
-      r.error = n == 0 ? "daemon closed the connection" : std::string("receive failed: ") + std::strerror(errno);
-      return r;
+    if (on_notification) on_notification(j);
+  }
+}
+
+bool RpcClient::next_notification(nlohmann::json& out, double timeout_s, std::string& why) {
+  if (!connect(why)) return false;
+  for (;;) {
+    if (!notifications_.empty()) {
+      out = std::move(notifications_.front());
+      notifications_.pop_front();
+      return true;
     }
-    pending_.append(buf, std::size_t(n));
+    std::string line;
+    if (!read_line(line, timeout_s, why)) return false;
+    auto j = nlohmann::json::parse(line, nullptr, false);
+    if (j.is_discarded() || !j.is_object()) {
+      why = "a line from the daemon is not JSON";
+      return false;
+    }
+    if (!j.contains("id") && j.contains("method")) notifications_.push_back(std::move(j));
   }
 }
 

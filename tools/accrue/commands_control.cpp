@@ -1,0 +1,79 @@
+// The control subcommands: reset, zero start|stop, quiet (docs/api.md,
+// reset_now, zero_start, zero_stop, quiet_mark). They change what the board
+// does or what the baseline may use, so each prints what was asked.
+#include <cstdio>
+#include <string>
+
+#include "tools/accrue/cli_args.hpp"
+#include "tools/accrue/commands.hpp"
+#include "tools/accrue/rpc_client.hpp"
+
+namespace accrue::client {
+
+using nlohmann::json;
+
+namespace {
+
+int send_command(const CommonOptions& o, const char* method, const char* what) {
+  RpcClient c(o.socket_path);
+  auto r = c.call(method);
+  if (!r.ok) return fail(r);
+  if (o.json) {
+    print_json(r.result);
+    return 0;
+  }
+  std::printf("%s: sent to the board as request %lld%s\n", what, (long long)r.result.value("request_id", 0),
+              r.result.value("acknowledged", false) ? ", acknowledged" : " (its acknowledgement is not awaited)");
+  return 0;
+}
+
+}  // namespace
+
+int cmd_reset(const CommonOptions& o, const std::vector<std::string>& args) {
+  if (!args.empty()) {
+    std::fprintf(stderr, "accrue reset: takes no options\n");
+    return 2;
+  }
+  return send_command(o, "reset_now", "reset now");
+}
+
+int cmd_zero(const CommonOptions& o, const std::vector<std::string>& args) {
+  if (args.size() != 1 || (args[0] != "start" && args[0] != "stop")) {
+    std::fprintf(stderr, "accrue zero: say start (close the zero relay) or stop (open it)\n");
+    return 2;
+  }
+  return args[0] == "start" ? send_command(o, "zero_start", "zero window start")
+                            : send_command(o, "zero_stop", "zero window stop");
+}
+
+int cmd_quiet(const CommonOptions& o, const std::vector<std::string>& args) {
+  json params = json::object();
+  for (std::size_t i = 0; i < args.size(); ++i) {
+    std::string v;
+    if (parse_flag(args, i, "--channel", v)) params["channel"] = whole_number("--channel", v);
+    else if (parse_flag(args, i, "--run", v)) params["run_id"] = whole_number("--run", v);
+    else if (parse_flag(args, i, "--from", v)) params["from"] = bound_value(v);
+    else if (parse_flag(args, i, "--to", v)) params["to"] = bound_value(v);
+    else if (parse_flag(args, i, "--note", v)) params["note"] = v;
+    else {
+      std::fprintf(stderr, "accrue quiet: unknown option %s\n", args[i].c_str());
+      return 2;
+    }
+  }
+  if (!params.contains("from") || !params.contains("to")) {
+    std::fprintf(stderr, "accrue quiet: --from and --to are required\n");
+    return 2;
+  }
+  RpcClient c(o.socket_path);
+  auto r = c.call("quiet_mark", params);
+  if (!r.ok) return fail(r);
+  if (o.json) {
+    print_json(r.result);
+    return 0;
+  }
+  std::printf("quiet window recorded: sample index %s to %s\n", r.result["from_index"].dump().c_str(),
+              r.result["to_index"].dump().c_str());
+  return 0;
+}
+
+}  // namespace accrue::client
