@@ -12,6 +12,7 @@ packages=(
   libgsl-dev libbenchmark-dev
   python3 python3-numpy python3-scipy
   dpkg-dev systemd
+  chromium  # tests/e2e/plot_render.sh renders accrue plot's SVG headless
 )
 
 missing=()

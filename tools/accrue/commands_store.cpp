@@ -36,11 +36,17 @@ std::string front_end_text(const json& def) {
          ", R2 " + (r2 > 0 ? format_si(r2, "ohm", 4) : std::string("none"));
 }
 
+std::string number_text(double v) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, "%g", v);
+  return buf;
+}
+
 std::string adc_text(const json& def) {
   if (!def.is_object() || !def.contains("adc")) return "-";
   const json& a = def["adc"];
   return std::to_string(a.value("bits", 0)) + "-bit " + (a.value("bipolar", true) ? "±" : "0..") +
-         format_si(a.value("full_scale_v", 0.0), "V", 4) + ", gain " + format_si(a.value("gain", 1.0), "", 4);
+         format_si(a.value("full_scale_v", 0.0), "V", 4) + ", gain " + number_text(a.value("gain", 1.0));
 }
 
 bool no_options(const char* name, const std::vector<std::string>& args) {
@@ -57,7 +63,7 @@ int cmd_channels(const CommonOptions& o, const std::vector<std::string>& args) {
   auto r = c.call("channels");
   if (!r.ok) return fail(r);
   if (o.json) return print_json(r.result), 0;
-  std::printf("%-4s %-14s %-6s %-12s %-34s %-28s %s\n", "ch", "quantity", "unit", "calibration", "front end", "ADC",
+  std::printf("%-4s %-14s %-6s %-16s %-34s %-28s %s\n", "ch", "quantity", "unit", "calibration", "front end", "ADC",
               "live total");
   for (const auto& ch : r.result["channels"]) {
     const json& cal = ch["calibration"];
@@ -66,10 +72,10 @@ int cmd_channels(const CommonOptions& o, const std::vector<std::string>& args) {
     std::string live = "-";
     if (ch.contains("live") && ch["live"].is_object())
       live = format_si(ch["live"].value("total", 0.0), ch["live"].value("unit", unit), 6);
-    const std::string version = cal.is_object() ? std::to_string(cal.value("calibration_id", 0)) + " (" +
-                                                      std::to_string(ch.value("calibration_versions", 0)) + " kept)"
+    const std::string version = cal.is_object() ? "id " + std::to_string(cal.value("calibration_id", 0)) + ", " +
+                                                      std::to_string(ch.value("calibration_versions", 0)) + " kept"
                                                 : "-";
-    std::printf("%-4d %-14s %-6s %-12s %-34s %-28s %s\n", ch.value("channel", 0),
+    std::printf("%-4d %-14s %-6s %-16s %-34s %-28s %s\n", ch.value("channel", 0),
                 cal.is_object() ? cal.value("quantity", "").c_str() : "-", unit.empty() ? "-" : unit.c_str(),
                 version.c_str(), front_end_text(def).c_str(), adc_text(def).c_str(), live.c_str());
   }

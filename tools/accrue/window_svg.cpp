@@ -26,7 +26,7 @@ double parse_utc(const std::string& text) {
 
 namespace {
 
-constexpr double kLeft = 86, kRight = 24, kTop = 64, kPanel = 230, kGap = 64, kBottom = 92;
+constexpr double kLeft = 86, kRight = 24, kTop = 64, kPanel = 230, kGap = 64, kBottom = 76;
 
 std::string n(double v) {
   char buf[32];
@@ -148,7 +148,9 @@ std::string window_svg(const json& window, const json& events, const PlotOptions
     } else if (kind == "board_zero_relay_closed") {
       zero_open = t;
     } else if (kind == "board_zero_relay_opened") {
-      if (!std::isnan(zero_open)) bands.push_back({zero_open, t, false});
+      // Opened with no close seen: the relay was closed from the run's start
+      // (the daemon may record that close before the run exists).
+      bands.push_back({std::isnan(zero_open) ? t_index0 : zero_open, t, false});
       zero_open = std::numeric_limits<double>::quiet_NaN();
     } else if (kind == "quiet_window") {
       const json d = json::parse(detail, nullptr, false);
@@ -185,7 +187,7 @@ std::string window_svg(const json& window, const json& events, const PlotOptions
 
   // One panel: frame, grid with labelled ticks, bands and markers, the data.
   auto panel = [&](const char* id, double top, const std::vector<double>& v, const std::vector<double>* band_u,
-                   const std::string& name, const std::string& panel_unit, const char* colour) {
+                   const std::string& name, const std::string& panel_unit, const char* colour, const char* stroke_width) {
     double lo = 0, hi = 0;
     bool first = true;
     for (std::size_t i = 0; i < v.size(); ++i) {
@@ -251,19 +253,19 @@ std::string window_svg(const json& window, const json& events, const PlotOptions
       for (std::size_t i = v.size(); i-- > 0;) o << n(x.map(s.t[i])) << "," << n(y.map(v[i] - 2 * (*band_u)[i])) << " ";
       o << "\"/>\n";
     }
-    o << "<polyline class=\"series\" fill=\"none\" stroke=\"" << colour << "\" stroke-width=\"1.6\" points=\"";
+    o << "<polyline class=\"series\" fill=\"none\" stroke=\"" << colour << "\" stroke-width=\"" << stroke_width << "\" points=\"";
     for (std::size_t i = 0; i < v.size(); ++i) o << n(x.map(s.t[i])) << "," << n(y.map(v[i])) << (i + 1 < v.size() ? " " : "");
     o << "\"/>\n</g>\n";
   };
-  panel("total", kTop, s.total, &s.total_u, "running total", unit, "#c03");
-  panel("rate", kTop + kPanel + kGap, s.rate, nullptr, "rate", rate_unit, "#05a");
+  panel("total", kTop, s.total, &s.total_u, "running total", unit, "#c03", "1.6");
+  panel("rate", kTop + kPanel + kGap, s.rate, nullptr, "rate", rate_unit, "#05a", "1");
 
   const double bottom = kTop + 2 * kPanel + kGap;
   std::string day = points.empty() ? "" : points.front().value("utc", "").substr(0, 10);
   o << "<text class=\"axis-label\" x=\"" << n((x.p0 + x.p1) / 2) << "\" y=\"" << n(bottom + 36)
     << "\" text-anchor=\"middle\">time (UTC" << (day.empty() ? "" : ", from " + xml(day)) << ")</text>\n";
   // Legend.
-  const double ly = height - 26;
+  const double ly = height - 18;
   double lx = kLeft;
   auto legend = [&](const std::string& swatch, const std::string& text) {
     o << swatch << "<text x=\"" << n(lx + 26) << "\" y=\"" << n(ly + 4) << "\">" << xml(text) << "</text>\n";
