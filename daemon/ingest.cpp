@@ -278,6 +278,18 @@ void Ingest::reconfigure(const DaemonConfig& config) {
   if (calibrations_changed && run_) end_run("calibration changed");
 }
 
+std::optional<std::uint64_t> Ingest::mark_quiet(std::optional<int> channel, std::uint64_t from_index,
+                                                std::uint64_t to_index) {
+  if (!run_) return std::nullopt;
+  std::optional<std::uint64_t> used;
+  for (std::size_t c = 0; c < run_->chains.size(); ++c) {
+    if (channel && std::size_t(*channel) != c) continue;
+    if (auto from = run_->chains[c]->add_quiet_window({from_index, to_index}))
+      used = used ? std::min(*used, *from) : *from;
+  }
+  return used;
+}
+
 void Ingest::flush() {
   if (run_) {
     for (std::size_t c = 0; c < run_->chains.size(); ++c) {

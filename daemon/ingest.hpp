@@ -70,6 +70,11 @@ class Ingest {
                     std::optional<int> channel = std::nullopt) {
     event(std::move(kind), std::move(detail), index, channel);
   }
+  // A quiet interval marked while the run goes on (API quiet_mark): each
+  // chain (or `channel`'s) fits the part it has not yet processed as a
+  // baseline. Returns the first index the fits will use; nullopt when no run
+  // is active or the interval is already behind every chain.
+  std::optional<std::uint64_t> mark_quiet(std::optional<int> channel, std::uint64_t from_index, std::uint64_t to_index);
   // Called with every event as it is recorded, before it reaches the writer (live subscribers).
   void set_event_listener(std::function<void(const storage::EventRow&)> listener) { event_listener_ = std::move(listener); }
 

@@ -320,6 +320,11 @@ int main(int argc, char** argv) {
   // go through BoardCommands' acks and retries like identify does.
   std::uint16_t api_request_id = 0x8000;
   api::LinkControl control(link, ingest, api_request_id);
+  // A calibration set over the API joins the running config as a reload would.
+  control.set_config_sink([&](const DaemonConfig& next) {
+    config.channels = next.channels;
+    ingest.reconfigure(config);
+  });
   api::Server* server_ptr = nullptr;
   ingest.set_event_listener([&](const storage::EventRow& e) {
     if (hub.subscriptions() == 0) return;

@@ -14,6 +14,7 @@ namespace accrue::daemon::api {
 
 struct ControlResult {
   bool ok = false;
+  bool bad_params = false;                     // !ok because the request's values are invalid (not the board's state)
   std::string message;                         // why, when !ok
   nlohmann::json detail = nlohmann::json::object();  // what was done, when ok
 };
@@ -28,6 +29,15 @@ class Control {
   // Records [from_index, to_index] of the active run as a quiet interval.
   virtual ControlResult mark_quiet(std::optional<int> channel, std::uint64_t from_index, std::uint64_t to_index,
                                    const std::string& note) = 0;
+  // Replaces one channel's calibration settings with `entry` (the keys of a
+  // config "channels" entry, without "channel"; keys left out take their
+  // defaults). A change closes the active run; the next block opens a new run
+  // with a new calibration version, the total carrying on. Invalid entries are
+  // refused with bad_params and every error named.
+  virtual ControlResult new_calibration(int channel, const nlohmann::json& entry) {
+    (void)channel, (void)entry;
+    return {false, false, "new calibrations are not offered here", nlohmann::json::object()};
+  }
 };
 
 }  // namespace accrue::daemon::api

@@ -1,5 +1,6 @@
 #include "daemon/api/link_control.hpp"
 
+#include "daemon/options.hpp"
 #include "protocol/encoder.hpp"
 
 namespace accrue::daemon::api {
@@ -43,11 +44,61 @@ ControlResult LinkControl::mark_quiet(std::optional<int> channel, std::uint64_t 
     r.message = "no run is active";
     return r;
   }
+  // The live chains fit what they have not yet processed; the event keeps the
+  // whole interval for a later reprocessing of the stored raw samples.
+  const std::optional<std::uint64_t> fit_from = ingest_.mark_quiet(channel, from_index, to_index);
   const nlohmann::json detail = {{"from_index", from_index}, {"to_index", to_index}, {"note", note}};
   ingest_.record_event("quiet_window", detail.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace), from_index,
                        channel);
   r.ok = true;
-  r.detail = {{"recorded", true}, {"from_index", from_index}, {"to_index", to_index}};
+  r.detail = {{"recorded", true},
+              {"from_index", from_index},
+              {"to_index", to_index},
+              {"baseline_from_index", fit_from ? nlohmann::json(*fit_from) : nlohmann::json(nullptr)}};
+  return r;
+}
+
+}  // namespace accrue::daemon::api
+
+namespace accrue::daemon::api {
+
+ControlResult LinkControl::new_calibration(int channel, const nlohmann::json& entry) {
+  ControlResult r;
+  if (!config_sink_) {
+    r.message = "new calibrations are not offered by this daemon";
+    return r;
+  }
+  if (!entry.is_object() || entry.contains("channel")) {
+    r.bad_params = true;
+    r.message = "settings must be an object of channel keys, without \"channel\"";
+    return r;
+  }
+  // The same checks as the config file's "channels" entries, on a scratch config.
+  nlohmann::json one = entry;
+  one["channel"] = channel;
+  DaemonConfig scratch;
+  const std::vector<ConfigError> errors =
+      load_config_text(nlohmann::json{{"channels", nlohmann::json::array({one})}}.dump(), scratch);
+  if (!errors.empty() || !scratch.channels.count(channel)) {
+    r.bad_params = true;
+    for (const auto& e : errors) r.message += (r.message.empty() ? "" : "; ") + to_string(e);
+    if (r.message.empty()) r.message = "settings were not accepted";
+    return r;
+  }
+  DaemonConfig next = ingest_.config();
+  const auto old = next.channels.find(channel);
+  const bool changed = old == next.channels.end() || !(old->second == scratch.channels.at(channel));
+  const bool was_active = ingest_.run_active();
+  if (changed) {
+    next.channels[channel] = scratch.channels.at(channel);
+    ingest_.record_event("calibration_new",
+                         "channel " + std::to_string(channel) + " settings replaced over the API: " +
+                             entry.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace),
+                         std::nullopt, channel);
+    config_sink_(next);
+  }
+  r.ok = true;
+  r.detail = {{"channel", channel}, {"changed", changed}, {"run_closed", changed && was_active}};
   return r;
 }
 

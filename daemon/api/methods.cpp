@@ -245,7 +245,8 @@ Reply Methods::call(const std::string& method, const json& params, const json& i
   if (method == "window") return window(params, id);
   if (method == "segments") return segments(params, id);
   if (method == "events") return events(params, id);
-  if (method == "reset_now" || method == "zero_start" || method == "zero_stop" || method == "quiet_mark")
+  if (method == "reset_now" || method == "zero_start" || method == "zero_stop" || method == "quiet_mark" ||
+      method == "calibration_new")
     return control(method, params, id);
   if (method == "subscribe") return subscribe(params, id, peer);
   if (method == "unsubscribe") return unsubscribe(params, id, peer);
@@ -579,6 +580,15 @@ json Methods::control(const std::string& method, const json& params, const json&
     if (auto k = unknown_key(params, {})) return bad_params(id, *k);
     if (!control_) return error_reply(id, rpc_error::control_refused, "control is not available");
     r = control_->zero_window(method == "zero_start");
+  } else if (method == "calibration_new") {
+    if (auto k = unknown_key(params, {"channel", "settings"})) return bad_params(id, *k);
+    auto channel = int_param(params, "channel", 0, 254, why);
+    if (!why.empty()) return bad_params(id, why);
+    if (!channel) return bad_params(id, "channel is required");
+    if (!params.contains("settings") || !params["settings"].is_object())
+      return bad_params(id, "settings must be an object (the keys of a config channels entry)");
+    if (!control_) return error_reply(id, rpc_error::control_refused, "control is not available");
+    r = control_->new_calibration(int(*channel), params["settings"]);
   } else {
     if (auto k = unknown_key(params, {"channel", "run_id", "from", "to", "note"})) return bad_params(id, *k);
     auto channel = int_param(params, "channel", 0, 254, why);
@@ -597,6 +607,7 @@ json Methods::control(const std::string& method, const json& params, const json&
     r = control_->mark_quiet(channel ? std::optional<int>(int(*channel)) : std::nullopt, *from, *to,
                              params.value("note", ""));
   }
+  if (!r.ok && r.bad_params) return bad_params(id, r.message);
   if (!r.ok) return error_reply(id, rpc_error::control_refused, "control refused: " + r.message);
   return result_reply(id, r.detail);
 }

@@ -26,6 +26,19 @@ ChannelChain::ChannelChain(Calibration calibration, ChainSettings settings)
             [](const auto& a, const auto& b) { return a.first_index < b.first_index; });
 }
 
+std::optional<std::uint64_t> ChannelChain::add_quiet_window(ChainSettings::QuietWindow window) {
+  const std::uint64_t next = samples_seen_ > 0 ? last_index_ + 1 : 0;
+  window.first_index = std::max(window.first_index, next);
+  if (window.first_index > window.last_index) return std::nullopt;
+  // Windows already passed all start at or before last_index_, so the new one
+  // sorts at or after quiet_next_ and the scan in process() finds it.
+  auto& quiet = settings_.quiet_windows;
+  const auto at = std::upper_bound(quiet.begin(), quiet.end(), window,
+                                   [](const auto& a, const auto& b) { return a.first_index < b.first_index; });
+  quiet.insert(at, window);
+  return window.first_index;
+}
+
 void ChannelChain::resume(const ChainState& state) {
   state_ = state;
   // The interval since the stored state is dead time: the next segment's gap covers it.

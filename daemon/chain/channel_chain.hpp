@@ -24,6 +24,7 @@
 // No I/O, no clocks, no randomness: the same input gives the same output.
 #include <cstdint>
 #include <limits>
+#include <optional>
 #include <vector>
 
 #include "daemon/chain/baseline_fit.hpp"
@@ -73,6 +74,12 @@ class ChannelChain {
   void on_missing_samples(ChainOutput& out);
   // The run ended: close the open segment and the open series bucket.
   void finish(ChainOutput& out);
+
+  // Adds a quiet interval while the chain runs (an API mark). Only samples
+  // not yet processed can feed its fit: returns the first index the fit will
+  // use (the later of first_index and the next sample), or nullopt when the
+  // whole interval is already behind the chain.
+  std::optional<std::uint64_t> add_quiet_window(ChainSettings::QuietWindow window);
 
   // The total as if the open segment ended at the last sample seen.
   TotalSnapshot snapshot() const;

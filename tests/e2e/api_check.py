@@ -131,6 +131,8 @@ for m in ("status", "channels", "window", "segments", "events", "totals", "runs"
 doc_conn = Conn()
 last_sub = None
 for req, want in examples:
+    if req["method"] == "calibration_new" and "result" in want:
+        continue  # a new calibration closes the run: tests/e2e/calibration_new.sh runs this one
     if req["method"] == "unsubscribe" and last_sub is not None:
         req["params"]["subscription"] = last_sub
     got = doc_conn.call(req["method"], req.get("params"), req["id"])

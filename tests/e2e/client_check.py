@@ -5,7 +5,7 @@ over the socket for the reference answers; the client's --json output must be
 the same JSON, its tables must show the same rows, and its CSV export, read
 back with Python's csv module, must hold the API window's values exactly.
 """
-import argparse, csv, datetime, io, json, re, socket, subprocess, time
+import argparse, csv, datetime, io, json, re, socket, sqlite3, subprocess, time
 
 ap = argparse.ArgumentParser()
 for a in ("socket", "client", "work"):
@@ -106,7 +106,14 @@ client("zero", "stop")
 client("zero", "sideways", rc=2)
 q_from, q_to = committed() - 30000, committed() - 20000
 out, _ = client("quiet", "--from", str(q_from), "--to", str(q_to), "--note", 'shutter "A", closed')
-ok(out.strip() == f"quiet window recorded: sample index {q_from} to {q_to}", f"quiet: {out!r}")
+ok(out.splitlines() == [f"quiet window recorded: sample index {q_from} to {q_to}",
+                        "the live baseline cannot use it: the interval is already processed (the event keeps it)"],
+   f"quiet (past): {out!r}")
+# The beam stops at 5900 s (see client_commands.sh): mark 5920..5990 s quiet ahead of time; the
+# live chain must fit exactly that interval as a baseline, and find the same drift as the zero windows.
+F_FROM, F_TO = 5920000, 5990000
+r = client_json("quiet", "--channel", "0", "--from", str(F_FROM), "--to", str(F_TO), "--note", "beam off")
+ok(r == {"recorded": True, "from_index": F_FROM, "to_index": F_TO, "baseline_from_index": F_FROM}, f"quiet (ahead): {r}")
 client("quiet", "--from", "5", rc=2)
 print("control (reset, zero start/stop, quiet): ok")
 
@@ -117,7 +124,18 @@ print("run ended")
 ev = api.call("events", {"kind": ["control", "quiet_window"], "run_id": run_id})["events"]
 ok(sum(e["kind"] == "control" for e in ev) == 3, f"control events: {ev}")
 quiet = [json.loads(e["detail"]) for e in ev if e["kind"] == "quiet_window"]
-ok(quiet == [{"from_index": q_from, "to_index": q_to, "note": 'shutter "A", closed'}], f"quiet_window events: {quiet}")
+ok(quiet == [{"from_index": q_from, "to_index": q_to, "note": 'shutter "A", closed'},
+             {"from_index": F_FROM, "to_index": F_TO, "note": "beam off"}], f"quiet_window events: {quiet}")
+db = sqlite3.connect(f"file:{args.work}/a.db?mode=ro", uri=True)
+fits = db.execute("SELECT first_index, last_index, slope_v_per_s FROM baseline WHERE run_id = ? AND channel = 0"
+                  " ORDER BY ordinal", (run_id,)).fetchall()
+quiet_fit = [f for f in fits if f[0] == F_FROM]
+ok(len(quiet_fit) == 1 and quiet_fit[0][1] == F_TO, f"no baseline fitted on [{F_FROM}, {F_TO}]: {fits}")
+zero_slopes = sorted(f[2] for f in fits if f[0] != F_FROM)
+ok(len(zero_slopes) >= 1, f"no zero-window baseline: {fits}")
+median = zero_slopes[len(zero_slopes) // 2]
+ok(abs(quiet_fit[0][2] - median) <= 0.05 * abs(median), f"quiet-window drift {quiet_fit[0][2]} vs zero windows' {median}")
+print(f"quiet window ahead of time fitted as a baseline: drift {quiet_fit[0][2]:.6g} V/s, zero windows {median:.6g} V/s: ok")
 
 # Every read subcommand's --json is the API's reply.
 pairs = [

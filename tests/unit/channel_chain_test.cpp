@@ -135,3 +135,28 @@ TEST_CASE("channel_chain: a resumed state continues the same total", "[chain][re
   const double expected_gap_v = a.input_v_per_s * double(100 + 2 + 1) * a.dt;
   CHECK_THAT(out.segments[0].gap_before_v, WithinRel(expected_gap_v, 1e-3));
 }
+
+TEST_CASE("channel_chain: a quiet window added while running feeds the baseline", "[chain][baseline][quiet]") {
+  SyntheticBoard b;
+  const double rate = b.input_v_per_s + b.drift_v_per_s;
+  b.run(10000, 0, rate);  // no zero window yet: the chain has no baseline
+  // The user marks [5000, 30000] quiet: the first half is behind the chain,
+  // so the fit starts at the next sample.
+  const auto used_from = b.chain.add_quiet_window({5000, 29999});
+  REQUIRE(used_from);
+  CHECK(*used_from == 10000);
+  CHECK_FALSE(b.chain.add_quiet_window({0, 9999}));  // wholly in the past
+  b.run(20000, 0, b.drift_v_per_s);  // the input really is off: drift only
+  b.run(20000, 0, rate);
+  b.chain.finish(b.out);
+
+  REQUIRE(b.out.baselines.size() == 1);
+  CHECK(b.out.baselines[0].quiet_window);
+  CHECK_THAT(b.out.baselines[0].slope_v_per_s, WithinRel(b.drift_v_per_s, 1e-3));
+  // Truth: the input ran for 10000 + 19999 sample steps (see SyntheticBoard::run);
+  // Q = -C * dV. Without the drift removed the total would be 1.7 % off.
+  const double true_q = -b.cal.front_end.c_farad * b.input_v_per_s * b.dt * (10000 + 19999);
+  const TotalSnapshot t = b.chain.snapshot();
+  CHECK((t.flags & segment_flag::no_baseline) == 0);
+  CHECK_THAT(t.total, WithinRel(true_q, 1e-4));
+}

@@ -28,6 +28,7 @@ int cmd_events(const CommonOptions& o, const std::vector<std::string>& args);
 int cmd_reset(const CommonOptions& o, const std::vector<std::string>& args);
 int cmd_zero(const CommonOptions& o, const std::vector<std::string>& args);
 int cmd_quiet(const CommonOptions& o, const std::vector<std::string>& args);
+int cmd_calibrate(const CommonOptions& o, const std::vector<std::string>& args);
 // commands_live.cpp
 int cmd_tail(const CommonOptions& o, const std::vector<std::string>& args);
 // commands_files.cpp

@@ -1,5 +1,5 @@
-// The control subcommands: reset, zero start|stop, quiet (docs/api.md,
-// reset_now, zero_start, zero_stop, quiet_mark). They change what the board
+// The control subcommands: reset, zero start|stop, quiet, calibrate
+// (docs/api.md, reset_now, zero_start, zero_stop, quiet_mark, calibration_new). They change what the board
 // does or what the baseline may use, so each prints what was asked.
 #include <cstdio>
 #include <string>
@@ -73,6 +73,46 @@ int cmd_quiet(const CommonOptions& o, const std::vector<std::string>& args) {
   }
   std::printf("quiet window recorded: sample index %s to %s\n", r.result["from_index"].dump().c_str(),
               r.result["to_index"].dump().c_str());
+  const json& from = r.result.contains("baseline_from_index") ? r.result["baseline_from_index"] : json(nullptr);
+  if (from.is_null())
+    std::printf("the live baseline cannot use it: the interval is already processed (the event keeps it)\n");
+  else
+    std::printf("the live baseline fits it from sample index %s\n", from.dump().c_str());
+  return 0;
+}
+
+int cmd_calibrate(const CommonOptions& o, const std::vector<std::string>& args) {
+  json params = json::object();
+  std::string settings;
+  for (std::size_t i = 0; i < args.size(); ++i) {
+    std::string v;
+    if (parse_flag(args, i, "--channel", v)) params["channel"] = whole_number("--channel", v);
+    else if (settings.empty() && !args[i].starts_with("--")) settings = args[i];
+    else {
+      std::fprintf(stderr, "accrue calibrate: unknown option %s\n", args[i].c_str());
+      return 2;
+    }
+  }
+  const json parsed = json::parse(settings, nullptr, false);
+  if (!params.contains("channel") || parsed.is_discarded() || !parsed.is_object()) {
+    std::fprintf(stderr, "accrue calibrate: give --channel N and the settings as a JSON object, e.g.\n"
+                         "  accrue calibrate --channel 0 '{\"c_farad\": 1e-9, \"r1_ohm\": 1e9}'\n");
+    return 2;
+  }
+  params["settings"] = parsed;
+  RpcClient c(o.socket_path);
+  auto r = c.call("calibration_new", params);
+  if (!r.ok) return fail(r);
+  if (o.json) {
+    print_json(r.result);
+    return 0;
+  }
+  if (!r.result.value("changed", false))
+    std::printf("channel %d: the settings are those in use; nothing changed\n", r.result.value("channel", 0));
+  else
+    std::printf("channel %d: new calibration settings taken%s; see accrue calibration for the new version\n",
+                r.result.value("channel", 0),
+                r.result.value("run_closed", false) ? " (the run closed; the next data opens a new one)" : "");
   return 0;
 }
 

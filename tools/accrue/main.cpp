@@ -40,6 +40,9 @@ commands:
   zero start|stop             close or open the zero relay (control)
   quiet --from T --to T [--channel N] [--note TEXT]
                               mark an interval with no input (control)
+  calibrate --channel N SETTINGS
+                              new calibration settings for a channel, as a JSON
+                              object of config "channels" keys (control)
   compare --truth FILE [--max-error-percent X]
                               the committed total beside a simulator's truth
   wait [--timeout S]          wait until the newest run has ended and all of it
@@ -109,6 +112,7 @@ int main(int argc, char** argv) {
   if (command == "reset") return cmd_reset(o, args);
   if (command == "zero") return cmd_zero(o, args);
   if (command == "quiet") return cmd_quiet(o, args);
+  if (command == "calibrate") return cmd_calibrate(o, args);
   if (command == "plan") return cmd_plan(o.json, args);
   if (command == "reprocess") return cmd_reprocess(o, args);
   std::fprintf(stderr, "accrue: unknown command %s (see --help)\n", command.c_str());
