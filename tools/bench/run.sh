@@ -98,7 +98,7 @@ machine="$(uname -m), $(nproc) cores, $(grep -m1 'model name' /proc/cpuinfo | cu
 /usr/bin/python3 - "$work/kernel.json" "$top/tools/bench/RESULTS.md" "$machine" \
   "$paced_samples" "$p_wall" "$p_cpu" "$p_bytes" "$p_shed" "$fast_samples" "$f_wall" "$f_cpu" "$f_bytes" "$f_shed" \
   "$n_seen" "$n_wall" "$n_bytes" "$work/window.json" "$win_s" "$win_bytes" "$csv_per_sample" "$win_raw_bytes" "$work/profile.txt" "$work/field.json" <<'PY'
-import json, sys
+import json, os, sys
 k = json.load(open(sys.argv[1]))["benchmarks"]
 def med(name):
     for b in k:
@@ -146,6 +146,9 @@ lines.append("")
 profile = open(prof).read().rstrip()
 if profile:
     lines += ["## Profile of the unpaced end-to-end run (perf, daemon only, self time)", "", "```text", profile, "```", ""]
+reading = os.path.join(os.path.dirname(out), "READING.md")
+if os.path.exists(reading):
+    lines.append(open(reading).read().rstrip())
 open(out, "w").write("\n".join(lines) + "\n")
 print("\n".join(lines))
 PY
