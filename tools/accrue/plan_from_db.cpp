@@ -93,7 +93,8 @@ DbResult read_recorded_run(const std::string& path, std::int64_t run_id, int cha
   const std::int64_t id = run.run_id;
 
   std::vector<double> slopes;
-  if (!prepare(db.get(), "SELECT slope_v_per_s FROM baseline WHERE run_id = ?1 AND channel = ?2 ORDER BY ordinal", id,
+  if (!prepare(db.get(), "SELECT slope_v_per_s FROM baseline WHERE run_id = ?1 AND channel = ?2"
+               " AND derivation = (SELECT derivation FROM derivation_newest WHERE run_id = ?1) ORDER BY ordinal", id,
                channel, s, e) ||
       !each_row(db.get(), s.get(), e, [&](sqlite3_stmt* st) { slopes.push_back(sqlite3_column_double(st, 0)); }))
     return r;
@@ -111,7 +112,8 @@ DbResult read_recorded_run(const std::string& path, std::int64_t run_id, int cha
   double live_samples = 0;
   if (!prepare(db.get(),
                "SELECT ordinal, first_index, last_index, start_v, quantity, flags, end_v FROM segment "
-               "WHERE run_id = ?1 AND channel = ?2 ORDER BY ordinal",
+               "WHERE run_id = ?1 AND channel = ?2"
+               " AND derivation = (SELECT derivation FROM derivation_newest WHERE run_id = ?1) ORDER BY ordinal",
                id, channel, s, e) ||
       !each_row(db.get(), s.get(), e, [&](sqlite3_stmt* st) {
         ++run.segments;
