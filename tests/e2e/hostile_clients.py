@@ -249,7 +249,13 @@ print(f"  ingest: {ing['samples'] - samples0} samples during the attack, gaps {i
 failed = list(errors)
 if honest_ok < args.connections // 10:
     failed.append(f"honest client answered {honest_ok} times")
-if (rss_peak - rss0) / 1024 > args.rss_bound_mb:
+# Under AddressSanitizer freed memory sits in its quarantine (hundreds of MiB by
+# design), so VmRSS says nothing about the daemon's own bounds there; every
+# other check of this test still holds and runs.
+under_asan = "ASAN_OPTIONS" in os.environ
+if under_asan:
+    print(f"  VmRSS bound not judged under AddressSanitizer (grew {(rss_peak - rss0) / 1024:.1f} MiB)")
+if not under_asan and (rss_peak - rss0) / 1024 > args.rss_bound_mb:
     failed.append(f"VmRSS grew {(rss_peak - rss0) / 1024:.1f} MiB, bound {args.rss_bound_mb}")
 if w["raw_blocks_shed"] or w["series_points_shed"]:
     failed.append("the writer shed data")
