@@ -7,16 +7,14 @@
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
 here=$(cd "$(dirname "$0")" && pwd)
-work=$(mktemp -d /tmp/accrue-api.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; [ -n "${ACCRUE_KEEP_WORK:-}" ] || rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup api
 
 # 500x real time (500 kS/s of board samples): long enough for the checks to run during the stream.
 "$sim" --set duration_s=7200 --set beam.stop_s=7100 --set zero_window_s=20 --set seed=6 --speed 500 \
   --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 head -c 24 /dev/urandom | od -An -tx1 | tr -d ' \n' >"$work/token"
 chmod 600 "$work/token"
 port=$(/usr/bin/python3 -c "import socket; s=socket.socket(); s.bind((\"127.0.0.1\", 0)); print(s.getsockname()[1])")

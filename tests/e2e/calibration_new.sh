@@ -6,18 +6,16 @@
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
 here=$(cd "$(dirname "$0")" && pwd)
-work=$(mktemp -d /tmp/accrue-calnew.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; [ -n "${ACCRUE_KEEP_WORK:-}" ] || rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup calnew
 
 "$sim" --set duration_s=900 --set zero_window_s=20 --set seed=5 --speed 120 \
   --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 "$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+e2e_wait_socket "$work/s.sock"
 
 /usr/bin/python3 - "$work/s.sock" "$client" "$here/../../docs/api.md" <<'PY' ||
 import json, socket, subprocess, sys, time

@@ -3,19 +3,17 @@
 # store, gives the same stored totals, segments and series, bit for bit.
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
-work=$(mktemp -d /tmp/accrue-replay.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup replay
 "$sim" --set duration_s=600 --set beam.stop_s=560 --set beam.current_a=5e-10 --set seed=5 --truth "$work/truth.json" \
   --link "$work/board" >/dev/null 2>&1 &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 "$daemon" --device "$work/board" --database "$work/live.db" --socket "$work/s.sock" --record "$work/run.capture" \
   2>"$work/live.err" &
 live=$!
 pids+=($live)
-for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+e2e_wait_socket "$work/s.sock"
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
 kill -TERM "$live"; wait "$live"
 "$daemon" --replay "$work/run.capture" --database "$work/replay.db" 2>"$work/replay.err"

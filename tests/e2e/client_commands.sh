@@ -7,21 +7,19 @@
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
 here=$(cd "$(dirname "$0")" && pwd)
-work=$(mktemp -d /tmp/accrue-client.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; [ -n "${ACCRUE_KEEP_WORK:-}" ] || rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup client
 
 "$sim" --set duration_s=6000 --set beam.stop_s=5900 --set zero_window_s=20 --set seed=11 --speed 400 \
   --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 cat >"$work/accrued.json" <<CONF
 { "device": "$work/board", "database": "$work/a.db", "socket": "$work/s.sock", "commit_interval_ms": 100 }
 CONF
 "$daemon" --config "$work/accrued.json" 2>"$work/daemon.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+e2e_wait_socket "$work/s.sock"
 
 /usr/bin/python3 "$here/client_check.py" --socket "$work/s.sock" --client "$client" --work "$work" ||
   { echo "--- daemon log"; tail -20 "$work/daemon.err"; echo "--- simulator log"; tail -5 "$work/sim.err"; exit 1; }

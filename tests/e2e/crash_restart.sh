@@ -9,24 +9,22 @@
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
 kills=${ACCRUE_CRASH_KILLS:-12}
-work=$(mktemp -d /tmp/accrue-crash.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill -9 "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup crash hard
 RANDOM=42  # seeded: the kill moments repeat from run to run
 "$sim" --set duration_s=$(( kills * 600 + 600 )) --set zero_window_s=10 \
   --set beam.start_s=15 --set beam.current_a=4e-10 --speed 20 --truth "$work/truth.json" --link "$work/board" \
   >/dev/null 2>&1 &
 sim_pid=$!
 pids+=($sim_pid)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 dev=$work/board
 start_daemon() {
   rm -f "$work/s.sock"
   "$daemon" --device "$dev" --database "$work/a.db" --socket "$work/s.sock" 2>>"$work/daemon.err" &
   daemon_pid=$!
   pids+=($daemon_pid)
-  for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+  e2e_wait_socket "$work/s.sock"
   # Wait until this daemon has taken up the run and committed that it did, so
   # every kill hits a live run whose resumption is on disk.
   local want=$1

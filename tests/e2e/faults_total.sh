@@ -9,10 +9,8 @@
 # the gaps that hold a spill edge (derived below).
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
-work=$(mktemp -d /tmp/accrue-faults.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup faults
 
 # Spills: 4 s on, 2 s off, from 25 s. The reboot at 149.5 s falls in the off
 # time [149, 151): the last block the board sends before it (at most 0.25 s
@@ -27,11 +25,11 @@ args=(--set duration_s=300 --set beam.stop_s=290 --set beam.start_s=25 --set zer
 "$sim" "${args[@]}" --print-scenario >"$work/scenario.json"
 "$sim" "${args[@]}" --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 "$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
 dpid=$!
 pids+=($dpid)
-for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+e2e_wait_socket "$work/s.sock"
 "$client" --socket "$work/s.sock" wait --timeout 60 >/dev/null
 kill -0 "$dpid"  # still running after every fault
 "$client" --socket "$work/s.sock" --json status >"$work/status.json"

@@ -7,16 +7,14 @@
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
 here=$(cd "$(dirname "$0")" && pwd)
-work=$(mktemp -d /tmp/accrue-hostile.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup hostile
 
 # 100x real time: ingest runs through the whole attack.
 "$sim" --set duration_s=7200 --set zero_window_s=10 --set seed=3 --speed 100 --truth "$work/truth.json" \
   --link "$work/board" >/dev/null 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 cat >"$work/accrued.json" <<CONF
 { "device": "$work/board", "database": "$work/a.db", "socket": "$work/s.sock",
   "commit_interval_ms": 100, "api_max_clients": 64, "api_client_buffer_bytes": 262144 }
@@ -24,7 +22,7 @@ CONF
 "$daemon" --config "$work/accrued.json" 2>"$work/daemon.err" &
 daemon_pid=$!
 pids+=($daemon_pid)
-for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+e2e_wait_socket "$work/s.sock"
 /usr/bin/python3 "$here/hostile_clients.py" --socket "$work/s.sock" --pid "$daemon_pid" --concurrent 40 ${ACCRUE_HOSTILE_CONNECTIONS:+--connections $ACCRUE_HOSTILE_CONNECTIONS} \
   || { echo "--- daemon log"; tail -20 "$work/daemon.err"; exit 1; }
 kill -0 "$daemon_pid" || { echo "daemon died"; exit 1; }

@@ -9,10 +9,8 @@
 # calls this script that way.
 set -euo pipefail
 sim=$1 daemon=$2 client=$3 wire=${4:-frames}
-work=$(mktemp -d /tmp/accrue-multi.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup multi
 
 channels=4 duration=240
 sim_wire=()
@@ -36,10 +34,10 @@ cat >"$work/accrued.json" <<EOF
 EOF
 "$sim" "${args[@]}" "${sim_wire[@]}" --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 "$daemon" --config "$work/accrued.json" 2>"$work/daemon.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+e2e_wait_socket "$work/s.sock"
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
 "$client" --socket "$work/s.sock" --json status >"$work/status.json"
 "$client" --socket "$work/s.sock" --json totals >"$work/totals.json"

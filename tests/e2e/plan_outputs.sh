@@ -5,8 +5,8 @@
 # and bad input refused with an error that names the option.
 set -euo pipefail
 daemon=$2 client=$3
-work=$(mktemp -d /tmp/accrue-plan.XXXXXX)
-trap 'rm -rf "$work"' EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup plan
 
 example=(plan --sensor volt_seconds --r1 100k --c 1u --r2 1G --vos 0.5m --ib 20p --rail 12
   --adc-bits 16 --full-scale 10 --dead-time 1m --pedestal 2m --noise 100u --input 5m:50m --duration 3600)

@@ -9,18 +9,16 @@ sim=$1 daemon=$2 client=$3
 here=$(cd "$(dirname "$0")" && pwd)
 browser=$(command -v chromium || command -v chromium-browser || true)
 [ -n "$browser" ] || { echo "chromium is not installed: skipping (scripts/bootstrap.sh installs it)"; exit 77; }
-work=$(mktemp -d /tmp/accrue-plot.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; [ -n "${ACCRUE_KEEP_WORK:-}" ] || rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup plot
 
 "$sim" --set duration_s=3600 --set beam.stop_s=3500 --set zero_window_s=20 --set seed=3 \
   --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 "$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+e2e_wait_socket "$work/s.sock"
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
 
 "$client" --socket "$work/s.sock" plot --points 800 --title 'Faraday cup, invented <demo> & test' --output "$work/plot.svg"

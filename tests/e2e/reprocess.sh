@@ -5,18 +5,16 @@
 # read the newest unless they name one.
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
-work=$(mktemp -d /tmp/accrue-reprocess.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; [ -n "${KEEP:-}" ] || rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup reprocess
 "$sim" --set duration_s=300 --set beam.start_s=30 --set beam.stop_s=280 --set beam.current_a=5e-10 --set seed=7 \
   --link "$work/board" >/dev/null 2>&1 &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 "$daemon" --device "$work/board" --database "$work/night.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
 live=$!
 pids+=($live)
-for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+e2e_wait_socket "$work/s.sock"
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
 q() { sqlite3 -readonly "$work/night.db" "$1"; }
 original=$(q "SELECT group_concat(quote(quantity) || quote(total_after), ',') FROM segment WHERE derivation = 1")

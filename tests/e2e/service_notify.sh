@@ -6,10 +6,8 @@
 set -euo pipefail
 sim=$1 daemon=$2
 helper=$(cd "$(dirname "$0")/../helpers" && pwd)/notify_listen.py
-work=$(mktemp -d /tmp/accrue-notify.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill -9 "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup notify hard
 wait_for() { for _ in $(seq 400); do eval "$1" && return 0; sleep 0.05; done; echo "timed out: $1"; exit 1; }
 
 "$sim" --set duration_s=600 --speed 1 --link "$work/board" --truth "$work/truth.json" >/dev/null 2>"$work/sim.err" &

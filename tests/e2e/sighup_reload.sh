@@ -5,10 +5,8 @@
 # the store gains a new calibration version for that channel.
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
-work=$(mktemp -d /tmp/accrue-sighup.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill -9 "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup sighup hard
 wait_for() { for _ in $(seq 600); do eval "$1" && return 0; sleep 0.05; done; echo "timed out: $1"; cat "$work/daemon.err"; exit 1; }
 versions() { /usr/bin/python3 -c 'import sqlite3,sys; print(sqlite3.connect(f"file:{sys.argv[1]}?mode=ro", uri=True).execute("SELECT COUNT(*) FROM calibration WHERE channel = 0").fetchone()[0])' "$work/a.db"; }
 

@@ -5,10 +5,8 @@
 # as many as it had accepted when the signal was sent.
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
-work=$(mktemp -d /tmp/accrue-sigterm.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill -9 "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup sigterm hard
 wait_for() { for _ in $(seq 600); do eval "$1" && return 0; sleep 0.05; done; echo "timed out: $1"; exit 1; }
 
 "$sim" --set duration_s=36000 --set seed=5 --link "$work/board" --truth "$work/truth.json" --linger-s 1 \

@@ -6,8 +6,8 @@ set -euo pipefail
 daemon=$2
 here=$(cd "$(dirname "$0")/../../systemd" && pwd)
 command -v systemd-analyze >/dev/null || { echo "systemd-analyze not installed: skipped"; exit 77; }
-work=$(mktemp -d /tmp/accrue-units.XXXXXX)
-trap 'rm -rf "$work"' EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup units
 sed "s|/usr/sbin/accrued|$daemon|" "$here/accrued@.service" >"$work/accrued@board1.service"
 out=$(systemd-analyze verify "$work/accrued@board1.service" 2>&1) || { echo "$out"; exit 1; }
 # verify prints warnings without failing; any line naming our unit is a finding.

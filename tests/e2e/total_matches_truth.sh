@@ -5,18 +5,16 @@
 # from the simulated noise and quantisation (see tolerance below).
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
-work=$(mktemp -d /tmp/accrue-e2e.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup e2e
 
 "$sim" --set duration_s=1800 --set beam.stop_s=1740 --set seed=11 --truth "$work/truth.json" --link "$work/board" \
   >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -L "$work/board" ] && break; sleep 0.05; done
+e2e_wait_link "$work/board"
 "$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
 pids+=($!)
-for _ in $(seq 200); do [ -S "$work/s.sock" ] && break; sleep 0.05; done
+e2e_wait_socket "$work/s.sock"
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
 # When the simulator exits, its --link has gone before its terminal closed,
 # so this daemon's reconnect attempts cannot reach another test's simulator
