@@ -64,6 +64,24 @@ f.write(json.dumps({"jsonrpc": "2.0", "id": 4, "method": "reprocess", "params": 
 assert json.loads(f.readline())["error"]["code"] == -32602
 print("API: %d progress notifications, derivations %s" % (progress, [x["derivation"] for x in d["derivations"]]))
 PY
+# The client names a derivation too: segments and windows of the recording (1)
+# and of the calibration change (2) are read apart.
+"$client" --socket "$work/s.sock" --json segments --derivation 1 --limit 3 >"$work/seg1.json"
+"$client" --socket "$work/s.sock" --json segments --derivation 2 --limit 3 >"$work/seg2.json"
+"$client" --socket "$work/s.sock" --json window --derivation 1 --points 20 --select total >"$work/win1.json"
+"$client" --socket "$work/s.sock" --json window --derivation 2 --points 20 --select total >"$work/win2.json"
+/usr/bin/python3 - "$work" <<'PY'
+import json, sys
+w = sys.argv[1]
+s1, s2 = (json.load(open(f"{w}/seg{d}.json")) for d in (1, 2))
+assert s1["derivation"] == 1 and s2["derivation"] == 2, (s1["derivation"], s2["derivation"])
+assert [a["ordinal"] for a in s1["segments"]] == [b["ordinal"] for b in s2["segments"]]
+assert any(a["quantity"] != b["quantity"] for a, b in zip(s1["segments"], s2["segments"]))
+w1, w2 = (json.load(open(f"{w}/win{d}.json")) for d in (1, 2))
+assert w1["derivation"] == 1 and w2["derivation"] == 2, (w1["derivation"], w2["derivation"])
+assert len(w1["points"]) == len(w2["points"]) > 0
+print("client --derivation: segments and windows of derivations 1 and 2 read apart")
+PY
 kill -TERM "$live"; wait "$live"
 
 # Offline, no daemon: the original calibration again, from derivation 1: bit for bit.

@@ -115,6 +115,7 @@ int cmd_segments(const CommonOptions& o, const std::vector<std::string>& args) {
     std::string v;
     if (parse_flag(args, i, "--channel", v)) params["channel"] = whole_number("--channel", v);
     else if (parse_flag(args, i, "--run", v)) params["run_id"] = whole_number("--run", v);
+    else if (parse_flag(args, i, "--derivation", v)) params["derivation"] = whole_number("--derivation", v);
     else if (parse_flag(args, i, "--from", v)) params["from"] = bound_value(v);
     else if (parse_flag(args, i, "--to", v)) params["to"] = bound_value(v);
     else if (parse_flag(args, i, "--after", v)) params["after"] = whole_number("--after", v);

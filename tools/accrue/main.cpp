@@ -18,7 +18,7 @@ commands:
   status                      link, board, run, live totals and counters
   totals                      committed running total per channel, with U (k=2)
   runs                        board sessions recorded in the store
-  window [--channel N] [--run ID] [--from T] [--to T] [--points N] [--select S]
+  window [--channel N] [--run ID] [--derivation D] [--from T] [--to T] [--points N] [--select S]
                               a window of the derived series; T is a sample
                               index, Unix seconds (with a fraction) or RFC 3339;
                               S is all, volts, quantity, total or rate
@@ -30,7 +30,7 @@ commands:
                               U (k=2), rate, resets, zero/quiet windows, events
   channels                    channels with their newest calibration and live total
   calibration [--channel N]   every calibration version
-  segments [--channel N] [--run ID] [--from T] [--to T] [--after K] [--limit N]
+  segments [--channel N] [--run ID] [--derivation D] [--from T] [--to T] [--after K] [--limit N]
                               reset-to-reset segments and what each contributed
   events [--kind K]... [--channel N] [--run ID] [--from T] [--to T] [--after E] [--limit N]
                               board and daemon events

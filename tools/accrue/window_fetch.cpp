@@ -10,6 +10,7 @@ WindowOptions parse_window_options(const std::vector<std::string>& args) {
     std::string v;
     if (parse_flag(args, i, "--channel", v)) w.params["channel"] = whole_number("--channel", v);
     else if (parse_flag(args, i, "--run", v)) w.params["run_id"] = whole_number("--run", v);
+    else if (parse_flag(args, i, "--derivation", v)) w.params["derivation"] = whole_number("--derivation", v);
     else if (parse_flag(args, i, "--from", v)) w.params["from"] = bound_value(v);
     else if (parse_flag(args, i, "--to", v)) w.params["to"] = bound_value(v);
     else if (parse_flag(args, i, "--points", v)) w.params["max_points"] = whole_number("--points", v);
