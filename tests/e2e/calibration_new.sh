@@ -13,9 +13,7 @@ e2e_setup calnew
   --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
 e2e_wait_link "$work/board"
-"$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
-pids+=($!)
-e2e_wait_socket "$work/s.sock"
+e2e_start_daemon
 
 /usr/bin/python3 - "$work/s.sock" "$client" "$here/../../docs/api.md" <<'PY' ||
 import json, socket, subprocess, sys, time

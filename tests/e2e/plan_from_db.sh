@@ -14,9 +14,7 @@ e2e_setup plandb
   >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
 e2e_wait_link "$work/board"
-"$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
-pids+=($!)
-e2e_wait_socket "$work/s.sock"
+e2e_start_daemon
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
 
 # The simulator's parts (tools/accrue-sim/scenario.hpp defaults), its 8 V reset threshold.

@@ -16,9 +16,7 @@ e2e_setup plot
   --truth "$work/truth.json" --link "$work/board" >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
 e2e_wait_link "$work/board"
-"$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
-pids+=($!)
-e2e_wait_socket "$work/s.sock"
+e2e_start_daemon
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
 
 "$client" --socket "$work/s.sock" plot --points 800 --title 'Faraday cup, invented <demo> & test' --output "$work/plot.svg"

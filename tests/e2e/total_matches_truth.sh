@@ -12,9 +12,7 @@ e2e_setup e2e
   >"$work/sim.out" 2>"$work/sim.err" &
 pids+=($!)
 e2e_wait_link "$work/board"
-"$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
-pids+=($!)
-e2e_wait_socket "$work/s.sock"
+e2e_start_daemon
 "$client" --socket "$work/s.sock" wait --timeout 120 >/dev/null
 # When the simulator exits, its --link has gone before its terminal closed,
 # so this daemon's reconnect attempts cannot reach another test's simulator

@@ -12,6 +12,10 @@
 #   daemon's API), up to 30 s, and fail with a message naming the path when it
 #   never appears: a start-up that failed says so here, not as a confusing
 #   error later on.
+# e2e_start_daemon
+#   Starts "$daemon" on the simulator's link "$work/board" with the store
+#   "$work/a.db" and the socket "$work/s.sock", its log in "$work/daemon.err";
+#   adds it to $pids, sets $daemon_pid and waits for the socket.
 
 e2e_setup() {
   work=$(mktemp -d "/tmp/accrue-$1.XXXXXX")
@@ -40,3 +44,10 @@ e2e_wait_for() {
 
 e2e_wait_link() { e2e_wait_for -L "$1" "simulator link"; }
 e2e_wait_socket() { e2e_wait_for -S "$1" "daemon socket"; }
+
+e2e_start_daemon() {
+  "$daemon" --device "$work/board" --database "$work/a.db" --socket "$work/s.sock" 2>"$work/daemon.err" &
+  daemon_pid=$!
+  pids+=("$daemon_pid")
+  e2e_wait_socket "$work/s.sock"
+}
