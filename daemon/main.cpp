@@ -355,7 +355,8 @@ int main(int argc, char** argv) {
     if (server_ptr) {
       const auto& a = server_ptr->counters();
       j["api"] = {{"clients", a.clients}, {"accepted", a.accepted}, {"refused_too_many", a.refused_too_many},
-                  {"cut_off", a.cut_off}, {"subscriptions", hub.subscriptions()},
+                  {"cut_off", a.cut_off}, {"closed_idle", a.closed_idle},
+                  {"closed_unfinished_line", a.closed_unfinished_line}, {"subscriptions", hub.subscriptions()},
                   {"notifications_sent", hub.counters().notifications_sent}};
     }
     return j;
@@ -381,6 +382,10 @@ int main(int argc, char** argv) {
   }
   server_settings.max_clients = std::size_t(config.api_max_clients);
   server_settings.limits.max_queued_bytes = std::size_t(config.api_client_buffer_bytes);
+  server_settings.limits.timeouts.idle = std::chrono::duration_cast<std::chrono::steady_clock::duration>(
+      std::chrono::duration<double>(config.api_idle_timeout_s));
+  server_settings.limits.timeouts.line = std::chrono::duration_cast<std::chrono::steady_clock::duration>(
+      std::chrono::duration<double>(config.api_line_timeout_s));
   api::Server server(io, server_settings, methods, hub, log);
   server_ptr = &server;
   std::string why;

@@ -396,12 +396,17 @@ std::vector<ConfigError> load_config_text(const std::string& text, DaemonConfig&
       "device", "baud", "data_bits", "stop_bits", "parity", "flow_control", "reconnect_max_s", "protocol",
       "settle_s", "end_window", "series_interval_s", "channels", "reset_schedule", "zero_windows",
       "database", "commit_interval_ms", "retention", "disk_floor_mb",
-      "socket", "socket_group", "tcp", "log_level", "stop_timeout_s", "api_max_clients", "api_client_buffer_bytes"};
+      "socket", "socket_group", "tcp", "log_level", "stop_timeout_s", "api_max_clients", "api_client_buffer_bytes",
+      "api_idle_timeout_s", "api_line_timeout_s"};
   for (auto it = j.begin(); it != j.end(); ++it)
     if (!known.count(it.key())) c.fail(it.key(), it.value(), "unknown key");
   if (j.contains("api_max_clients")) c.integer(j["api_max_clients"], "api_max_clients", config.api_max_clients, 1, 4096);
   if (j.contains("api_client_buffer_bytes"))
     c.integer(j["api_client_buffer_bytes"], "api_client_buffer_bytes", config.api_client_buffer_bytes, 4096, 1 << 30);
+  if (j.contains("api_idle_timeout_s"))
+    c.number(j["api_idle_timeout_s"], "api_idle_timeout_s", config.api_idle_timeout_s, 0.1, 7 * 86400.0);
+  if (j.contains("api_line_timeout_s"))
+    c.number(j["api_line_timeout_s"], "api_line_timeout_s", config.api_line_timeout_s, 0.1, 3600.0);
   // device and link
   if (j.contains("device")) load_device(j["device"], config, c);
   if (j.contains("baud")) c.integer(j["baud"], "baud", config.baud, 50, 12'000'000);

@@ -118,6 +118,8 @@ struct DaemonConfig {
   std::optional<TcpListen> tcp;
   int api_max_clients = 64;                // Unix and TCP clients together
   int api_client_buffer_bytes = 4 << 20;   // per-client outgoing queue
+  double api_idle_timeout_s = 60.0;        // a client that neither sends nor reads (and holds no subscription) is closed
+  double api_line_timeout_s = 10.0;        // a request line must be finished within this once begun
   // service
   LogLevel log_level = LogLevel::info;
   double stop_timeout_s = 10.0;  // SIGTERM: flush and commit within this, else exit 1

@@ -53,6 +53,8 @@ ReloadPlan plan_reload(const DaemonConfig& running, const DaemonConfig& fresh, s
   restart(fresh.disk_floor_mb != running.disk_floor_mb, "disk_floor_mb");
   restart(fresh.socket_path != running.socket_path, "socket");
   restart(fresh.socket_group != running.socket_group, "socket_group");
+  restart(fresh.api_idle_timeout_s != running.api_idle_timeout_s, "api_idle_timeout_s");
+  restart(fresh.api_line_timeout_s != running.api_line_timeout_s, "api_line_timeout_s");
   restart(fresh.tcp.has_value() != running.tcp.has_value() ||
               (fresh.tcp && (fresh.tcp->address != running.tcp->address || fresh.tcp->port != running.tcp->port ||
                              fresh.tcp->token_file != running.tcp->token_file ||

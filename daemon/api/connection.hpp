@@ -9,14 +9,20 @@
 //   off: the queue is dropped, one "cut_off" error notification is queued
 //   and the socket closed after it is written or after a 10 s grace.
 // An oversize line gets an Invalid Request error and is skipped; the
-// connection carries on. Owned by shared_ptr from its coroutines; the Hub
+// connection carries on. A client idle too long, or one that leaves a request
+// line unfinished too long (ClientDeadline), gets one "closed" notification
+// (best effort, never waited for) and is closed at once. Owned by shared_ptr from its coroutines; the Hub
 // holds it weakly. Asio thread only.
+#include <sys/socket.h>
+
+#include <cstdio>
 #include <cstring>
 #include <deque>
 #include <functional>
 #include <memory>
 #include <string>
 
+#include "daemon/api/client_deadline.hpp"
 #include "daemon/api/methods.hpp"
 #include "daemon/api/sink.hpp"
 #include "daemon/asio.hpp"
@@ -26,19 +32,31 @@ namespace accrue::daemon::api {
 struct ConnectionLimits {
   std::size_t max_request_bytes = 64 * 1024;
   std::size_t max_queued_bytes = 4u << 20;
+  ClientTimeouts timeouts;
+};
+
+// Why a connection ended, for the server's counters.
+enum class CloseReason { ended, cut_off, idle, unfinished_line };
+
+// Everything a connection needs from the server besides its socket.
+struct ConnectionHooks {
+  std::function<void(const Sink*, CloseReason)> done;
+  std::function<bool(const Sink*)> listening;                 // holds a subscription: never idle
+  std::function<std::chrono::steady_clock::time_point()> now;  // the clock the deadlines read
 };
 
 template <typename Socket>
 class Connection : public Sink, public std::enable_shared_from_this<Connection<Socket>> {
  public:
-  using Done = std::function<void(const Sink*, bool cut_off)>;
-  Connection(Socket socket, ConnectionLimits limits, Methods& methods, bool needs_token, Done done)
+  Connection(Socket socket, ConnectionLimits limits, Methods& methods, bool needs_token, ConnectionHooks hooks)
       : socket_(std::move(socket)),
         limits_(limits),
         methods_(methods),
-        done_(std::move(done)),
+        hooks_(std::move(hooks)),
+        deadline_(limits_.timeouts, hooks_.now()),
         drained_(socket_.get_executor()),
-        grace_(socket_.get_executor()) {
+        grace_(socket_.get_executor()),
+        watchdog_(socket_.get_executor()) {
     peer_.authenticated = !needs_token;
   }
 
@@ -46,6 +64,7 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
     peer_.sink = this->weak_from_this();
     peer_.sink_ptr = this;
     asio::co_spawn(socket_.get_executor(), read_loop(this->shared_from_this()), asio::detached);
+    arm_watchdog();
   }
 
   bool notify(std::string line) override {
@@ -87,15 +106,62 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
     drained_.cancel();
   }
 
+  bool listening() const { return hooks_.listening && hooks_.listening(this); }
+
+  // Sleeps until the deadline could next be passed; activity in between only
+  // moves the deadline, so the timer is re-armed lazily when it fires.
+  void arm_watchdog() {
+    const auto now = hooks_.now();
+    watchdog_.expires_after(deadline_.next_check(now, listening()) - now);
+    watchdog_.async_wait([self = this->shared_from_this()](const boost::system::error_code& ec) {
+      if (ec || self->finished_ || self->closing_) return;  // closing: the grace timer ends it
+      const auto verdict = self->deadline_.check(self->hooks_.now(), self->listening());
+      if (verdict == ClientDeadline::Verdict::keep) {
+        self->arm_watchdog();
+      } else {
+        self->timed_out(verdict);
+      }
+    });
+  }
+
+  void timed_out(ClientDeadline::Verdict verdict) {
+    const bool idle = verdict == ClientDeadline::Verdict::idle;
+    const auto seconds = std::chrono::duration<double>(idle ? limits_.timeouts.idle : limits_.timeouts.line).count();
+    close_reason_ = idle ? CloseReason::idle : CloseReason::unfinished_line;
+    // One line, only if nothing else is being written, without waiting: a
+    // client that is not reading must not hold the slot any longer.
+    if (!writing_) {
+      char amount[32];
+      std::snprintf(amount, sizeof amount, "%g", seconds);
+      const std::string line =
+          nlohmann::json{{"jsonrpc", "2.0"},
+                         {"method", "closed"},
+                         {"params",
+                          {{"code", rpc_error::timed_out},
+                           {"message", idle ? std::string("idle for ") + amount + " s"
+                                            : std::string("request line not finished within ") + amount + " s"}}}}
+              .dump() +
+          "\n";
+      [[maybe_unused]] const auto sent =
+          ::send(socket_.native_handle(), line.data(), line.size(), MSG_DONTWAIT | MSG_NOSIGNAL);
+    }
+    closing_ = true;
+    close();
+  }
+
   void close() {
     boost::system::error_code ec;
     socket_.shutdown(asio::socket_base::shutdown_both, ec);
     socket_.close(ec);
     grace_.cancel();
     drained_.cancel();
+    watchdog_.cancel();
     if (!finished_) {
       finished_ = true;
-      done_(this, was_cut_off_);
+      hooks_.done(this, was_cut_off_ ? CloseReason::cut_off : close_reason_);
+      // Nothing is written any more: give back the queue's memory now, not when the last coroutine lets go.
+      std::deque<std::string>().swap(out_);
+      queued_bytes_ = 0;
     }
   }
 
@@ -107,6 +173,7 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
       co_await asio::async_write(self->socket_, asio::buffer(line), asio::redirect_error(asio::use_awaitable, ec));
       self->queued_bytes_ -= std::min(self->queued_bytes_, line.size());
       if (ec) break;
+      self->deadline_.wrote(self->hooks_.now());
       if (self->queued_bytes_ <= self->limits_.max_queued_bytes / 2) self->drained_.cancel();
     }
     self->writing_ = false;
@@ -122,6 +189,7 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
       const std::size_t n =
           co_await self->socket_.async_read_some(asio::buffer(chunk), asio::redirect_error(asio::use_awaitable, ec));
       if (ec) break;
+      bool ended_a_line = false;
       std::size_t at = 0;
       while (at < n && !self->closing_) {
         const char* begin = chunk.data() + at;
@@ -131,12 +199,13 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
         if (!discarding) {
           if (line.size() + take > self->limits_.max_request_bytes) {
             discarding = true;
-            line.clear();
+            std::string().swap(line);
           } else {
             line.append(begin, take);
           }
         }
         if (!nl) continue;
+        ended_a_line = true;
         if (discarding) {
           discarding = false;
           self->enqueue(error_reply(nullptr, rpc_error::invalid_request,
@@ -154,15 +223,24 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
             }
           }
           line.clear();
+          // A large request grew the buffer: give it back rather than hold it for the connection's life.
+          if (line.capacity() > 16384) std::string().swap(line);
         }
         // Back-pressure: a client that does not read its replies stops being read.
-        while (!self->closing_ && self->queued_bytes_ > self->limits_.max_queued_bytes) {
-          self->drained_.expires_after(std::chrono::hours(24));
-          co_await self->drained_.async_wait(asio::redirect_error(asio::use_awaitable, ec));
-          ec = {};
+        if (!self->closing_ && self->queued_bytes_ > self->limits_.max_queued_bytes) {
+          self->deadline_.pause_reading(self->hooks_.now());
+          while (!self->closing_ && self->queued_bytes_ > self->limits_.max_queued_bytes) {
+            self->drained_.expires_after(std::chrono::hours(24));
+            co_await self->drained_.async_wait(asio::redirect_error(asio::use_awaitable, ec));
+            ec = {};
+          }
+          self->deadline_.resume_reading(self->hooks_.now());
         }
       }
+      self->deadline_.received(self->hooks_.now(), ended_a_line, discarding || !line.empty());
     }
+    // Done with reading: a line buffer grown by a large request goes back now.
+    std::string().swap(line);
     // The peer stopped sending: finish writing what it asked for, within a grace.
     self->closing_ = true;
     if (!self->writing_) {
@@ -178,16 +256,19 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
   Socket socket_;
   ConnectionLimits limits_;
   Methods& methods_;
-  Done done_;
+  ConnectionHooks hooks_;
+  ClientDeadline deadline_;
   Peer peer_;
   asio::steady_timer drained_;
   asio::steady_timer grace_;
+  asio::steady_timer watchdog_;
   std::deque<std::string> out_;
   std::size_t queued_bytes_ = 0;
   bool writing_ = false;
   bool closing_ = false;
   bool finished_ = false;
   bool was_cut_off_ = false;
+  CloseReason close_reason_ = CloseReason::ended;
 };
 
 }  // namespace accrue::daemon::api

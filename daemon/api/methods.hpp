@@ -35,6 +35,7 @@ inline constexpr int auth_required = -32002;
 inline constexpr int cut_off = -32003;
 inline constexpr int control_refused = -32004;
 inline constexpr int too_many_clients = -32005;
+inline constexpr int timed_out = -32006;
 }  // namespace rpc_error
 
 nlohmann::json error_reply(const nlohmann::json& id, int code, const std::string& message);

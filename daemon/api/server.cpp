@@ -85,12 +85,24 @@ void Server::stop() {
   ::unlink(settings_.socket_path.c_str());
 }
 
-void Server::finished(const Sink* sink, bool cut_off) {
+void Server::finished(const Sink* sink, CloseReason reason) {
   hub_.drop(sink);
   --counters_.clients;
-  if (cut_off) {
-    ++counters_.cut_off;
-    log_.warning("api: cut off a client that did not read its notifications");
+  switch (reason) {
+    case CloseReason::cut_off:
+      ++counters_.cut_off;
+      log_.warning("api: cut off a client that did not read its notifications");
+      break;
+    case CloseReason::idle:
+      ++counters_.closed_idle;
+      log_.info("api: closed an idle client");
+      break;
+    case CloseReason::unfinished_line:
+      ++counters_.closed_unfinished_line;
+      log_.warning("api: closed a client that left a request line unfinished");
+      break;
+    case CloseReason::ended:
+      break;
   }
 }
 
@@ -118,8 +130,10 @@ asio::awaitable<void> Server::accept_loop(Acceptor& acceptor, bool needs_token) 
     }
     ++counters_.accepted;
     ++counters_.clients;
+    ConnectionHooks hooks{[this](const Sink* s, CloseReason why) { finished(s, why); },
+                          [this](const Sink* s) { return hub_.subscriptions_of(s) > 0; }, settings_.now};
     auto c = std::make_shared<Connection<Socket>>(std::move(socket), settings_.limits, methods_, needs_token,
-                                                  [this](const Sink* s, bool cut) { finished(s, cut); });
+                                                  std::move(hooks));
     c->start();
   }
 }

@@ -4,10 +4,14 @@
 // loopback address unless allow_remote is set, and only with a token: a TCP
 // client must call "authenticate" first (see docs/api.md). Beyond max_clients
 // (Unix and TCP together) a new connection gets one error line and is closed.
-// Each client is a Connection with its own bounded outgoing queue. Runs on
-// the Asio thread; a client's I/O error ends only that client.
+// Each client is a Connection with its own bounded outgoing queue and its own
+// idle and unfinished-line deadlines (settings.limits.timeouts), read from the
+// injected clock `now`. Runs on the Asio thread; a client's I/O error ends
+// only that client.
 #include <cstddef>
+#include <chrono>
 #include <cstdint>
+#include <functional>
 #include <memory>
 #include <string>
 
@@ -28,12 +32,15 @@ struct ServerSettings {
   bool tcp_has_token = false;  // TCP refuses to start without one
   std::size_t max_clients = 64;
   ConnectionLimits limits;
+  std::function<std::chrono::steady_clock::time_point()> now = [] { return std::chrono::steady_clock::now(); };
 };
 
 struct ServerCounters {
   std::uint64_t accepted = 0;
   std::uint64_t refused_too_many = 0;
   std::uint64_t cut_off = 0;
+  std::uint64_t closed_idle = 0;             // sent nothing and read nothing for the idle timeout
+  std::uint64_t closed_unfinished_line = 0;  // left a request line unfinished for the line timeout
   std::size_t clients = 0;
 };
 
@@ -49,7 +56,7 @@ class Server {
  private:
   template <typename Acceptor>
   asio::awaitable<void> accept_loop(Acceptor& acceptor, bool needs_token);
-  void finished(const Sink* sink, bool cut_off);
+  void finished(const Sink* sink, CloseReason reason);
 
   asio::io_context& io_;
   ServerSettings settings_;

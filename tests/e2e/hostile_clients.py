@@ -1,4 +1,6 @@
-"""200 hostile connections against a running accrued while it ingests.
+"""200 hostile connections against a running accrued while it ingests, then
+--max-clients slow clients at once (half silent, half dribbling an unfinished
+line): the idle and line timeouts free their slots for an honest client.
 
 Kinds, in turn: a slowloris (a request dribbled a byte at a time, never
 finished), a 10 MB line, random bytes, deeply nested JSON, huge numbers, and
@@ -28,6 +30,10 @@ ap.add_argument("--concurrent", type=int, default=40)
 # page caches (2 MiB per connection by default) and the allocator's slack.
 ap.add_argument("--rss-bound-mb", type=float, default=40 * (0.25 + 0.0625) + 16)
 ap.add_argument("--kinds", default="", help="comma-separated subset of kinds, for diagnosis")
+# The daemon's api_max_clients, api_idle_timeout_s and api_line_timeout_s, for the case at the limit.
+ap.add_argument("--max-clients", type=int, default=64)
+ap.add_argument("--idle-timeout", type=float, default=2.0)
+ap.add_argument("--line-timeout", type=float, default=2.0)
 args = ap.parse_args()
 rng = random.Random(20261202)  # seeded: the same attack every run
 
@@ -246,7 +252,83 @@ print(f"  ingest: {ing['samples'] - samples0} samples during the attack, gaps {i
       f"raw_blocks_shed {w['raw_blocks_shed']}, series_points_shed {w['series_points_shed']}, "
       f"api cut_off {after.get('api', {}).get('cut_off')}")
 
-failed = list(errors)
+
+
+def at_the_limit():
+    """Fills every slot with slow clients; returns (figures, failures)."""
+    fails = []
+    for _ in range(200):  # only this status call connected: the attack's clients are gone
+        api0 = call("status")["result"]["api"]
+        if api0["clients"] == 1:
+            break
+        time.sleep(0.05)
+    n_silent = args.max_clients // 2
+    n_slow = args.max_clients - n_silent
+    silent = [connect() for _ in range(n_silent)]
+    slow = [connect() for _ in range(n_slow)]
+    for i, s in enumerate(slow):
+        s.sendall(b'{"jsonrpc":"2.0","id":%d,"method":"status"' % i)
+    # The limit is reached: one more is refused with -32005.
+    probe = connect()
+    refused = b"-32005" in drain(probe, 1.0)
+    probe.close()
+    if not refused:
+        fails.append("the connection beyond the limit was not refused (the limit was not reached)")
+    open_socks = {s: b"" for s in silent + slow}
+    slow_set = set(slow)
+    generous = 20 * max(args.idle_timeout, args.line_timeout) + 10
+    end = time.monotonic() + generous
+    honest_tries, honest_answered = 0, False
+    while time.monotonic() < end and (open_socks or not honest_answered):
+        for s in list(open_socks):
+            try:
+                s.settimeout(0.001)
+                try:
+                    chunk = s.recv(4096)
+                    if not chunk:
+                        raise ConnectionResetError
+                    open_socks[s] += chunk
+                except socket.timeout:
+                    pass
+                if s in slow_set:
+                    s.send(b" ")  # one byte of the unfinished line at a time
+            except OSError:
+                who = "dribbling" if s in slow_set else "silent"
+                note("at the limit", f"{who} closed by the daemon" + (" (told why)" if b"-32006" in open_socks[s] else ""))
+                s.close()
+                del open_socks[s]
+        if not honest_answered:
+            honest_tries += 1
+            try:
+                honest_answered = "result" in call("status")
+            except (OSError, ValueError):  # refused at the limit: closed before or after the error line
+                pass
+        time.sleep(0.25)
+    for s in open_socks:
+        s.close()
+    api1 = call("status")["result"]["api"]
+    idle = api1["closed_idle"] - api0["closed_idle"]
+    line = api1["closed_unfinished_line"] - api0["closed_unfinished_line"]
+    figures = (f"  at the limit: {n_silent} silent + {n_slow} dribbling clients held all {args.max_clients} slots; "
+               f"{len(open_socks)} still open after {generous:.0f} s; the honest client "
+               + (f"answered on try {honest_tries}" if honest_answered else "never answered")
+               + f"; closed_idle +{idle}, closed_unfinished_line +{line}")
+    if not honest_answered:
+        fails.append("at the limit the honest client was never served")
+    if open_socks:
+        fails.append(f"{len(open_socks)} slow clients never closed")
+    if idle != n_silent or line != n_slow:
+        fails.append(f"closed_idle +{idle} (expected {n_silent}), closed_unfinished_line +{line} (expected {n_slow})")
+    return figures, fails
+
+
+limit_figures, limit_fails = at_the_limit()
+print(limit_figures)
+for kind, what in outcomes.items():
+    if kind == "at the limit":
+        print(f"  {kind}: " + ", ".join(f"{n} {w}" for w, n in what.items()))
+
+failed = list(errors) + limit_fails
 if honest_ok < args.connections // 10:
     failed.append(f"honest client answered {honest_ok} times")
 # Under AddressSanitizer freed memory sits in its quarantine (hundreds of MiB by

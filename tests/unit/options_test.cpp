@@ -95,6 +95,9 @@ TEST_CASE("options: each error kind names the key, the value and the reason") {
        "tcp.allow_remote"},
       {R"({ "log_level": "verbose" })", "log_level", "\"verbose\"", "must be error, warning"},
       {R"({ "stop_timeout_s": 0 })", "stop_timeout_s", "0", ">= 0.5"},
+      {R"({ "api_idle_timeout_s": 0 })", "api_idle_timeout_s", "0", ">= 0.1"},
+      {R"({ "api_idle_timeout_s": "60" })", "api_idle_timeout_s", "\"60\"", "must be a number"},
+      {R"({ "api_line_timeout_s": 7200 })", "api_line_timeout_s", "7200", "<= 3600"},
       {R"({ "devise": "/dev/ttyUSB0" })", "devise", "\"/dev/ttyUSB0\"", "unknown key"},
       {R"({ "device": "/dev/ttyUSB0", )", "(file)", "", "not valid JSON"},
       {R"([ 1, 2 ])", "(file)", "", "must be a JSON object"},
@@ -187,6 +190,17 @@ TEST_CASE("options: the shipped example config is valid and sets what it documen
   CHECK(config.disk_floor_mb == 500.0);
   CHECK_FALSE(config.tcp);
   CHECK(config.log_level == accrue::LogLevel::info);
+}
+
+TEST_CASE("options: the API idle and unfinished-line timeouts are read in seconds, fractions allowed") {
+  DaemonConfig config;
+  CHECK(config.api_idle_timeout_s == 60.0);  // the defaults docs/api.md states
+  CHECK(config.api_line_timeout_s == 10.0);
+  const auto errors = load_config_text(R"({ "api_idle_timeout_s": 2.5, "api_line_timeout_s": 0.5 })", config);
+  INFO(joined(errors));
+  REQUIRE(errors.empty());
+  CHECK(config.api_idle_timeout_s == 2.5);
+  CHECK(config.api_line_timeout_s == 0.5);
 }
 
 TEST_CASE("options: text-line boards and link framing are carried") {
