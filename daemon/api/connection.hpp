@@ -150,6 +150,9 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
   }
 
   void close() {
+    // Before anything wakes: a reader paused for back-pressure must see the end, or it
+    // re-arms its 24 h wait and keeps the connection, queue and all, alive that long.
+    closing_ = true;
     boost::system::error_code ec;
     socket_.shutdown(asio::socket_base::shutdown_both, ec);
     socket_.close(ec);
@@ -160,6 +163,7 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
       finished_ = true;
       hooks_.done(this, was_cut_off_ ? CloseReason::cut_off : close_reason_);
       // Nothing is written any more: give back the queue's memory now, not when the last coroutine lets go.
+      // (Also what wakes a paused reader for good: its loop waits while queued_bytes_ is over the limit.)
       std::deque<std::string>().swap(out_);
       queued_bytes_ = 0;
     }
