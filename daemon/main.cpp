@@ -237,6 +237,11 @@ int main(int argc, char** argv) {
     }
     ingest.set_resume_point(run, checkpoints);
   }
+  // Storage trouble (failing writes, the file deleted or replaced) goes to the log as it happens.
+  writer->set_notice_sink([&log](bool is_error, const std::string& message) {
+    if (is_error) log.error(message);
+    else log.notice(message);
+  });
   writer->start();
 
   if (!config.replay_path.empty()) {
@@ -350,7 +355,13 @@ int main(int argc, char** argv) {
                    {"last_commit_unix", w.last_commit_unix}, {"last_error", w.last_error},
                    {"last_commit_ms", w.last_commit_ms}, {"max_commit_ms", w.max_commit_ms},
                    {"mean_commit_ms", w.commits ? w.sum_commit_ms / double(w.commits) : 0.0},
-                   {"committed_last_index", committed}};
+                   {"committed_last_index", committed},
+                   {"write_errors", w.write_errors}, {"consecutive_failures", w.consecutive_failures},
+                   {"retry_delay_ms", w.retry_delay_ms}, {"storage_recoveries", w.storage_recoveries},
+                   {"disk_full_errors", w.disk_full_errors}, {"raw_stopped", w.raw_stopped},
+                   {"raw_blocks_shed_disk", w.raw_blocks_shed_disk}, {"file_deleted", w.file_deleted},
+                   {"file_replaced", w.file_replaced}, {"file_rescues", w.file_rescues},
+                   {"file_rescue_failures", w.file_rescue_failures}, {"path", w.path}};
     j["database"] = config.database;
     if (server_ptr) {
       const auto& a = server_ptr->counters();

@@ -1,6 +1,12 @@
 #include "storage/writer.hpp"
 
+#include <fcntl.h>
+#include <sys/stat.h>
 #include <sys/statvfs.h>
+#include <unistd.h>
+
+#include <cerrno>
+#include <cstring>
 
 #include <nlohmann/json.hpp>
 
@@ -46,18 +52,72 @@ std::optional<std::uint64_t> statvfs_free_bytes(const std::string& path) {
 
 bool is_full(const Status& s) { return (s.code & 0xFF) == SQLITE_FULL; }
 
+// Device and inode of a path (false: no such file or not reachable).
+bool stat_id(const std::string& path, std::uint64_t& dev, std::uint64_t& ino, int& err) {
+  struct stat st {};
+  if (::stat(path.c_str(), &st) != 0) {
+    err = errno;
+    return false;
+  }
+  dev = std::uint64_t(st.st_dev);
+  ino = std::uint64_t(st.st_ino);
+  err = 0;
+  return true;
+}
+
+// fsync of a file or directory by name; VACUUM INTO leaves its output unsynced.
+Status sync_path(const std::string& path, bool directory) {
+  const int fd = ::open(path.c_str(), (directory ? O_RDONLY | O_DIRECTORY : O_RDONLY) | O_CLOEXEC);
+  if (fd < 0) return Status::error(SQLITE_IOERR, "cannot open " + path + " to sync it: " + std::strerror(errno));
+  const int rc = ::fsync(fd);
+  const int err = errno;
+  ::close(fd);
+  if (rc != 0) return Status::error(SQLITE_IOERR_FSYNC, "fsync " + path + ": " + std::strerror(err));
+  return Status::success();
+}
+
+std::string directory_of(const std::string& path) {
+  const auto slash = path.find_last_of('/');
+  return slash == std::string::npos ? "." : (slash == 0 ? "/" : path.substr(0, slash));
+}
+
+// "20261202T041500Z": a file-name-safe UTC stamp.
+std::string compact_utc(double unix_s) {
+  std::string t = rfc3339_utc(unix_s);  // 2026-12-02T04:15:00.123Z
+  std::string out;
+  for (char c : t) {
+    if (c == '.') break;
+    if (c != '-' && c != ':') out += c;
+  }
+  return out + "Z";
+}
+
+std::string sql_quote(const std::string& text) {
+  std::string out = "'";
+  for (char c : text) {
+    out += c;
+    if (c == '\'') out += '\'';
+  }
+  return out + "'";
+}
+
 }  // namespace
 
-Writer::Writer(std::unique_ptr<Database> db, WriterSettings settings, Clock clock, FreeBytes free_bytes)
-    : db_(std::move(db)), settings_(settings), clock_(std::move(clock)), free_bytes_(std::move(free_bytes)) {
+Writer::Writer(std::unique_ptr<Database> db, std::string path, WriterSettings settings, Clock clock,
+               FreeBytes free_bytes)
+    : db_(std::move(db)),
+      path_(path),
+      open_path_(std::move(path)),
+      settings_(settings),
+      clock_(std::move(clock)),
+      free_bytes_(std::move(free_bytes)) {
   wanted_max_file_bytes_ = settings_.max_file_bytes;
+  counters_.path = open_path_;
 }
 
 Writer::~Writer() { stop(); }
 
-Status Writer::open(const std::string& path, WriterSettings settings, Clock clock, std::unique_ptr<Writer>& out,
-                    FreeBytes free_bytes) {
-  std::unique_ptr<Database> db;
+Status Writer::open_connection(const std::string& path, const WriterSettings& settings, std::unique_ptr<Database>& db) {
   if (Status s = Database::open(path, Database::Mode::read_write_create, db); !s.ok()) return s;
   // Refuse a newer file before WAL mode (or anything else) touches it.
   int version = 0;
@@ -66,26 +126,40 @@ Status Writer::open(const std::string& path, WriterSettings settings, Clock cloc
   if (settings.durable_commits) {
     if (Status s = db->exec("PRAGMA synchronous = FULL"); !s.ok()) return s;
   }
+  return Status::success();
+}
+
+Status Writer::open(const std::string& path, WriterSettings settings, Clock clock, std::unique_ptr<Writer>& out,
+                    FreeBytes free_bytes) {
+  std::unique_ptr<Database> db;
+  if (Status s = open_connection(path, settings, db); !s.ok()) return s;
   if (Status s = migrate(*db); !s.ok()) return s;
-  // Checkpoints are ours (manage_wal), after commits, so readers see a bounded WAL.
-  if (Status s = db->exec("PRAGMA wal_autocheckpoint = 0"); !s.ok()) return s;
-  if (Status s = db->exec("PRAGMA journal_size_limit = " + std::to_string(settings.journal_size_limit_bytes)); !s.ok())
-    return s;
   if (!free_bytes) free_bytes = [path] { return statvfs_free_bytes(path); };
-  std::unique_ptr<Writer> w(new Writer(std::move(db), settings, std::move(clock), std::move(free_bytes)));
-  if (Status s = w->prepare_statements(); !s.ok()) return s;
+  std::unique_ptr<Writer> w(new Writer(std::move(db), path, settings, std::move(clock), std::move(free_bytes)));
+  if (Status s = w->attach_connection(); !s.ok()) return s;
   if (Status s = w->load_calibrations(); !s.ok()) return s;
+  w->record_file_ids();
+  out = std::move(w);
+  return Status::success();
+}
+
+Status Writer::attach_connection() {
+  // Checkpoints are ours (manage_wal), after commits, so readers see a bounded WAL.
+  if (Status s = db_->exec("PRAGMA wal_autocheckpoint = 0"); !s.ok()) return s;
+  if (Status s = db_->exec("PRAGMA journal_size_limit = " + std::to_string(settings_.journal_size_limit_bytes));
+      !s.ok())
+    return s;
+  if (Status s = prepare_statements(); !s.ok()) return s;
   // Learn the log's length after each commit (this hook replaces SQLite's automatic checkpoint).
   sqlite3_wal_hook(
-      w->db_->handle(),
+      db_->handle(),
       [](void* self, sqlite3*, const char*, int frames) {
         static_cast<Writer*>(self)->wal_frames_ = frames;
         return SQLITE_OK;
       },
-      w.get());
-  if (Status s = w->apply_max_file_bytes(settings.max_file_bytes); !s.ok()) return s;
-  out = std::move(w);
-  return Status::success();
+      this);
+  wal_frames_ = 0;
+  return apply_max_file_bytes(applied_max_file_bytes_ ? applied_max_file_bytes_ : settings_.max_file_bytes);
 }
 
 Status Writer::apply_max_file_bytes(std::uint64_t bytes) {
@@ -287,7 +361,10 @@ void Writer::thread_main() {
     bool stopping = false;
     {
       std::unique_lock lock(mutex_);
-      wake_.wait_for(lock, settings_.commit_interval, [&] { return stopping_; });
+      // While commits fail, wait longer each time (the delay doubles, see cycle()).
+      const auto wait = counters_.consecutive_failures > 0 ? std::chrono::milliseconds(counters_.retry_delay_ms)
+                                                           : settings_.commit_interval;
+      wake_.wait_for(lock, wait, [&] { return stopping_; });
       stopping = stopping_;
       while (!queue_.empty()) {
         pending.push_back(std::move(queue_.front()));
@@ -296,15 +373,162 @@ void Writer::thread_main() {
       for (auto& c : new_calibrations_) calibrations_.push_back(std::move(c));
       new_calibrations_.clear();
     }
+    bool give_up = false;
     if (!pending.empty() || !calibrations_.empty()) {
       cycle(pending);
-      if (!pending.empty() && stopping && ++failures_at_stop >= 3) return;  // logged in counters; nothing more to try
+      give_up = !pending.empty() && stopping && ++failures_at_stop >= 3;  // logged in counters; nothing more to try
     }
-    if (stopping && pending.empty()) {
+    bool done = give_up;
+    if (!done && stopping && pending.empty()) {
       std::lock_guard lock(mutex_);
-      if (queue_.empty()) return;
+      done = queue_.empty();
+    }
+    {
+      std::lock_guard lock(mutex_);
+      thread_done_ = done;
+    }
+    progress_.notify_all();
+    if (done) return;
+  }
+}
+
+bool Writer::wait_until(const std::function<bool(const WriterCounters&)>& pred) {
+  std::unique_lock lock(mutex_);
+  progress_.wait(lock, [&] { return pred(counters_) || thread_done_; });
+  return pred(counters_);
+}
+
+void Writer::note(bool is_error, const std::string& message) {
+  if (notice_) notice_(is_error, message);
+}
+
+void Writer::record_file_ids() {
+  int err = 0;
+  const auto id = [&](const std::string& p, FileId& out) {
+    FileId f;
+    f.known = stat_id(p, f.dev, f.ino, err);
+    if (f.known) out = f;
+  };
+  id(open_path_, db_id_);
+  id(open_path_ + "-wal", wal_id_);
+  id(open_path_ + "-shm", shm_id_);
+}
+
+void Writer::check_file_identity(std::deque<Batch>& pending) {
+  if (!settings_.check_file_identity || !db_ || !db_id_.known) return;
+  std::uint64_t dev = 0, ino = 0;
+  int err = 0;
+  const bool present = stat_id(open_path_, dev, ino, err);
+  if (present && dev == db_id_.dev && ino == db_id_.ino) {
+    // Still ours: learn the -wal/-shm files too, so a rescue removes only ours.
+    record_file_ids();
+    return;
+  }
+  if (!present && err != ENOENT && err != ENOTDIR) return;  // cannot tell (EACCES, ...): keep writing
+  const double now = clock_();
+  const std::string was = open_path_;
+  const std::string kind = present ? "database_replaced" : "database_deleted";
+  bool first = false;
+  {
+    std::lock_guard lock(mutex_);
+    first = next_rescue_unix_ == 0.0;
+    if (first) ++(present ? counters_.file_replaced : counters_.file_deleted);
+  }
+  if (first) {
+    note(true, present ? "database file " + was + " was replaced by another file under the running daemon" +
+                             " (inode " + std::to_string(db_id_.ino) + " -> " + std::to_string(ino) +
+                             "); that file is left alone and the open database is copied aside"
+                       : "database file " + was + " was deleted while open; copying the open database back to it");
+  } else if (now < next_rescue_unix_) {
+    return;  // a failed rescue is retried later
+  }
+  // Deleted: the copy takes the path again. Replaced: a new sibling name, never the stranger's file.
+  std::string target = was;
+  if (present) {
+    const std::string base = path_ + ".rescued-" + compact_utc(now);
+    target = base;
+    std::uint64_t d = 0, i = 0;
+    for (int n = 2; stat_id(target, d, i, err) || err != ENOENT; ++n) {
+      if (n > 100) break;
+      target = base + "-" + std::to_string(n);
     }
   }
+  std::string written_to;
+  const Status s = rescue(target, !present, written_to);
+  if (!s.ok()) {
+    next_rescue_unix_ = now + settings_.full_retry_interval_s;
+    {
+      std::lock_guard lock(mutex_);
+      ++counters_.file_rescue_failures;
+      counters_.last_error = "rescue of " + was + ": " + s.message;
+    }
+    note(true, "cannot rescue the database that was at " + was + ": " + s.message +
+                   (db_ ? "; still writing to the open file, which is lost when the daemon stops"
+                        : "; data stays queued until a database can be opened"));
+    return;
+  }
+  next_rescue_unix_ = 0.0;
+  {
+    std::lock_guard lock(mutex_);
+    ++counters_.file_rescues;
+    counters_.path = open_path_;
+  }
+  const std::string detail = "path=" + was + " inode_was=" + std::to_string(db_id_.ino) +
+                             (present ? " replaced_by_inode=" + std::to_string(ino) : std::string()) +
+                             " rescued_to=" + written_to;
+  writer_event(pending, kind, detail);
+  note(true, kind + ": every committed row was copied to " + written_to + "; writing continues there");
+  db_id_ = {};
+  record_file_ids();
+}
+
+Status Writer::rescue(const std::string& target, bool take_path, std::string& written_to) {
+  const std::string was = open_path_;
+  // Deleted: copy beside it first, then link into the path (link never replaces a file
+  // someone put there meanwhile). Replaced: copy straight to the new sibling.
+  const std::string copy = take_path ? target + ".rescue-tmp" : target;
+  if (db_) {
+    if (take_path) (void)::unlink(copy.c_str());  // a half-written copy of an earlier attempt (ours)
+    if (Status s = db_->exec("VACUUM INTO " + sql_quote(copy)); !s.ok()) {
+      (void)::unlink(copy.c_str());
+      return Status::error(s.code, "VACUUM INTO " + copy + ": " + s.message);
+    }
+    if (Status s = sync_path(copy, false); !s.ok()) return s;
+    // Close the old file, then remove its -wal/-shm if they are still ours: SQLite would
+    // otherwise pair that log with whatever file takes the path and corrupt it.
+    st_.reset();
+    db_.reset();
+    int err = 0;
+    for (const auto& [suffix, id] : {std::pair{"-wal", wal_id_}, std::pair{"-shm", shm_id_}}) {
+      std::uint64_t d = 0, i = 0;
+      const std::string p = was + suffix;
+      if (id.known && stat_id(p, d, i, err) && d == id.dev && i == id.ino) (void)::unlink(p.c_str());
+    }
+    wal_id_ = shm_id_ = {};
+    written_to = copy;
+    if (take_path) {
+      if (::link(copy.c_str(), target.c_str()) == 0) {
+        (void)::unlink(copy.c_str());
+        written_to = target;
+      } else {
+        // Someone created the path meanwhile: keep the copy beside it under a rescued name.
+        const std::string aside = path_ + ".rescued-" + compact_utc(clock_());
+        if (::rename(copy.c_str(), aside.c_str()) == 0) written_to = aside;
+      }
+    }
+    (void)sync_path(directory_of(written_to), true);  // the new name survives a power cut
+    open_path_ = written_to;
+  }
+  std::unique_ptr<Database> db;
+  if (Status s = open_connection(open_path_, settings_, db); !s.ok()) return s;
+  db_ = std::move(db);
+  if (Status s = attach_connection(); !s.ok()) {
+    st_.reset();
+    db_.reset();
+    return s;
+  }
+  written_to = open_path_;
+  return Status::success();
 }
 
 void Writer::writer_event(std::deque<Batch>& pending, std::string kind, std::string detail) {
@@ -317,12 +541,27 @@ void Writer::writer_event(std::deque<Batch>& pending, std::string kind, std::str
 // One commit cycle: the disk policy decides whether raw rows go in, then the
 // commit, then WAL and retention housekeeping.
 void Writer::cycle(std::deque<Batch>& pending) {
+  if (!db_) {
+    // A rescue closed the old file but could not open the new one: try again.
+    std::string ignored;
+    if (clock_() >= next_rescue_unix_) {
+      if (rescue(open_path_, false, ignored).ok()) {
+        next_rescue_unix_ = 0.0;
+        db_id_ = {};
+        record_file_ids();
+        note(false, "database reopened at " + open_path_);
+      } else {
+        next_rescue_unix_ = clock_() + settings_.full_retry_interval_s;
+      }
+    }
+  }
+  check_file_identity(pending);
   std::uint64_t wanted_cap = 0;
   {
     std::lock_guard lock(mutex_);
     wanted_cap = wanted_max_file_bytes_;
   }
-  if (wanted_cap != applied_max_file_bytes_) {
+  if (db_ && wanted_cap != applied_max_file_bytes_) {
     if (Status s = apply_max_file_bytes(wanted_cap); !s.ok()) {
       std::lock_guard lock(mutex_);
       counters_.last_error = s.message;
@@ -363,6 +602,7 @@ void Writer::cycle(std::deque<Batch>& pending) {
     // Raw rows are shed now (counted in commit); derived rows may still fit.
     s = commit(pending, false);
   }
+  track_outage(pending, s, now);
   if (s.ok()) {
     manage_wal();
     if (now - last_retention_unix_ >= settings_.retention_interval_s) {
@@ -372,8 +612,57 @@ void Writer::cycle(std::deque<Batch>& pending) {
   }
 }
 
+void Writer::track_outage(std::deque<Batch>& pending, Status& s, double now) {
+  if (!s.ok()) {
+    std::uint64_t failures = 0, delay_ms = 0;
+    std::size_t queued = 0;
+    {
+      std::lock_guard lock(mutex_);
+      if (!is_full(s)) ++counters_.write_errors;
+      failures = ++counters_.consecutive_failures;
+      if (failures == 1) counters_.failing_since_unix = now;
+      const std::uint64_t base_ms = std::max<std::uint64_t>(1, std::uint64_t(settings_.commit_interval.count()));
+      const std::uint64_t max_ms = std::max<std::uint64_t>(base_ms, std::uint64_t(settings_.max_retry_interval.count()));
+      delay_ms = std::min(max_ms, base_ms << std::min<std::uint64_t>(failures - 1, 20));
+      counters_.retry_delay_ms = delay_ms;
+      queued = counters_.queued_bytes;
+    }
+    // Said at the 1st, 2nd, 4th, 8th... failure in a row, so a long outage does not flood the log.
+    if ((failures & (failures - 1)) == 0)
+      note(true, "database writes are failing (" + std::to_string(failures) + " in a row): " + s.message + "; " +
+                     std::to_string(queued) + " bytes stay queued, next attempt in " + std::to_string(delay_ms) + " ms");
+    return;
+  }
+  std::uint64_t failures = 0, raw_shed = 0, series_shed = 0;
+  double since = 0.0;
+  {
+    std::lock_guard lock(mutex_);
+    failures = counters_.consecutive_failures;
+    if (failures == 0) {
+      // Shedding of an outage may begin before its first failed commit: count from the last success.
+      outage_raw_shed_ = counters_.raw_blocks_shed + counters_.raw_blocks_shed_disk;
+      outage_series_shed_ = counters_.series_points_shed;
+      return;
+    }
+    since = counters_.failing_since_unix;
+    raw_shed = counters_.raw_blocks_shed + counters_.raw_blocks_shed_disk - outage_raw_shed_;
+    series_shed = counters_.series_points_shed - outage_series_shed_;
+    counters_.consecutive_failures = 0;
+    counters_.failing_since_unix = 0.0;
+    counters_.retry_delay_ms = 0;
+    ++counters_.storage_recoveries;
+  }
+  const std::string detail = "failed_commits=" + std::to_string(failures) + " outage_s=" + std::to_string(now - since) +
+                             " raw_blocks_shed=" + std::to_string(raw_shed) +
+                             " series_points_shed=" + std::to_string(series_shed);
+  writer_event(pending, "storage_recovered", detail);
+  s = commit(pending, raw_stop_ == RawStop::none);
+  note(false, "database writes work again: " + detail);
+}
+
 Status Writer::commit(std::deque<Batch>& pending, bool with_raw) {
   if (pending.empty() && calibrations_.empty()) return Status::success();
+  if (!db_) return Status::error(SQLITE_CANTOPEN, "no database open at " + open_path_);
   const auto t0 = std::chrono::steady_clock::now();  // latency figure only, no decision depends on it
   std::size_t bytes = 0;
   attempt_raw_bytes_ = 0;

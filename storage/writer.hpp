@@ -27,6 +27,27 @@
 // truncates the WAL file when it restarts, so the WAL stays bounded as long as
 // readers keep their read transactions short (every Reader query is one).
 //
+// Failing writes (read-only remount, I/O errors, a full file that takes no
+// derived rows either): the failed transaction is rolled back and everything
+// stays queued; the next attempt waits twice as long each time, from
+// commit_interval up to max_retry_interval. The queue limits above still hold,
+// so raw blocks, then series points, are shed only once the queue is full
+// (counted, and a "writer_shed" event when there is room again). The first
+// success after failures writes a "storage_recovered" event with the number
+// of failed commits, the outage and what was shed meanwhile.
+//
+// File identity: before each commit the writer compares the path's device and
+// inode with those of the file it has open. If the file was deleted
+// (unlinked while open), the live data is copied with VACUUM INTO to a fresh
+// file, which then takes the path, and writing carries on there. If another
+// file was put at the path (renamed over it), that file is left alone: the
+// live data is copied to a sibling "<path>.rescued-<UTC>" and writing carries
+// on there. Either way the open (now unlinked) file's own -wal/-shm at the
+// path are removed, so no one pairs them with the new file, and a
+// "database_deleted" or "database_replaced" event names both paths. If the
+// copy fails, writing continues into the open file and the rescue is retried
+// every full_retry_interval (the data lives only as long as the process then).
+//
 // Retention: every retention_interval, rows whose time is older than their
 // tier's keep time are deleted (raw blocks, series points, each rollup width);
 // a keep time of 0 keeps the tier for ever.
@@ -72,6 +93,10 @@ struct WriterSettings {
   bool durable_commits = true;
   // A cap on the file's size (PRAGMA max_page_count); 0: none.
   std::uint64_t max_file_bytes = 0;
+  // Longest wait between attempts while commits fail (the wait doubles from commit_interval).
+  std::chrono::milliseconds max_retry_interval{5000};
+  // Compare the path's inode with the open file's before each commit (see File identity).
+  bool check_file_identity = true;
 };
 
 struct WriterCounters {
@@ -101,6 +126,18 @@ struct WriterCounters {
   double max_commit_ms = 0.0;
   double sum_commit_ms = 0.0;
   std::string last_error;
+  // Failing writes (other than a full disk) and the current outage.
+  std::uint64_t write_errors = 0;
+  std::uint64_t consecutive_failures = 0;  // 0 while commits succeed
+  double failing_since_unix = 0.0;          // 0 while commits succeed
+  std::uint64_t retry_delay_ms = 0;         // wait before the next attempt
+  std::uint64_t storage_recoveries = 0;
+  // File identity (deleted or replaced under the writer) and rescues.
+  std::uint64_t file_deleted = 0;
+  std::uint64_t file_replaced = 0;
+  std::uint64_t file_rescues = 0;
+  std::uint64_t file_rescue_failures = 0;
+  std::string path;  // the file being written now (differs from the opened path after a replaced rescue)
   std::map<int, std::uint64_t> committed_last_index;  // per channel, from checkpoints
 };
 
@@ -108,6 +145,8 @@ class Writer {
  public:
   using Clock = std::function<double()>;                          // Unix seconds; injected for tests
   using FreeBytes = std::function<std::optional<std::uint64_t>()>;  // free space where the file lives
+  // Told of storage trouble and recovery (is_error: error or notice), from the writer thread.
+  using Notice = std::function<void(bool is_error, const std::string& message)>;
 
   // Opens (creating if needed) and migrates the file; the thread is not started
   // yet. A file of a newer schema version is refused before anything is written.
@@ -128,11 +167,16 @@ class Writer {
   // Commits everything queued, stops the thread. Idempotent.
   void stop();
   WriterCounters counters() const;
+  // Blocks until pred(counters) holds, re-checking after every commit cycle;
+  // false if the thread has ended first. For tests and tools: no deadline.
+  bool wait_until(const std::function<bool(const WriterCounters&)>& pred);
+  // Before start(): where storage trouble is reported besides the counters.
+  void set_notice_sink(Notice notice) { notice_ = std::move(notice); }
   // Takes effect before the next commit (tests use it to lift a simulated full disk).
   void set_max_file_bytes(std::uint64_t bytes);
 
  private:
-  Writer(std::unique_ptr<Database> db, WriterSettings settings, Clock clock, FreeBytes free_bytes);
+  Writer(std::unique_ptr<Database> db, std::string path, WriterSettings settings, Clock clock, FreeBytes free_bytes);
   struct CalibrationRow {
     std::int64_t id;
     int channel;
@@ -145,6 +189,15 @@ class Writer {
   Status load_calibrations();
   Status write_calibrations(const std::vector<CalibrationRow>& rows);
   Status apply_max_file_bytes(std::uint64_t bytes);
+  static Status open_connection(const std::string& path, const WriterSettings& settings, std::unique_ptr<Database>& db);
+  Status attach_connection();  // statements, WAL hook and file cap on db_
+  // File identity (see the header comment); each runs on the writer thread between commits.
+  void check_file_identity(std::deque<Batch>& pending);
+  Status rescue(const std::string& target, bool take_path, std::string& written_to);
+  void record_file_ids();
+  void note(bool is_error, const std::string& message);
+  // Counts a failed cycle (backoff, notice) or, on the first success after failures, writes "storage_recovered".
+  void track_outage(std::deque<Batch>& pending, Status& s, double now);
   void thread_main();
   void cycle(std::deque<Batch>& pending);
   Status commit(std::deque<Batch>& pending, bool with_raw);
@@ -156,6 +209,16 @@ class Writer {
   void apply_retention();
 
   std::unique_ptr<Database> db_;
+  std::string path_;       // the configured path
+  std::string open_path_;  // the file written now
+  struct FileId {
+    bool known = false;
+    std::uint64_t dev = 0, ino = 0;
+  };
+  FileId db_id_, wal_id_, shm_id_;
+  double next_rescue_unix_ = 0.0;
+  std::uint64_t outage_raw_shed_ = 0, outage_series_shed_ = 0;  // shed counts when the outage began
+  Notice notice_;
   WriterSettings settings_;
   Clock clock_;
   FreeBytes free_bytes_;
@@ -182,6 +245,8 @@ class Writer {
   bool stopping_ = false;
   bool shed_notice_pending_ = false;
   std::uint64_t wanted_max_file_bytes_ = 0;
+  bool thread_done_ = false;
+  std::condition_variable progress_;  // after every cycle (wait_until)
   WriterCounters counters_;
   std::thread thread_;
 };

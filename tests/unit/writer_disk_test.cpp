@@ -10,7 +10,7 @@
 #include <thread>
 
 #include "storage/reader.hpp"
-#include "storage_fixture.hpp"
+#include "writer_batches.hpp"
 
 using namespace accrue;
 using namespace accrue::storage;
@@ -18,43 +18,11 @@ using namespace accrue::storage::testing;
 
 namespace {
 
-constexpr double kT0 = 1.8e9;
+constexpr double kT0 = kWriterT0;
 
-// One batch: a raw block of incompressible codes, one series point, a checkpoint.
-Batch make_batch(std::int64_t calibration_id, std::uint64_t k, std::uint16_t samples, std::mt19937& rng,
-                 bool first) {
-  Batch b;
-  if (first) b.run_start = run_start(1, 1e-3, kT0);
-  RawBlockRow raw;
-  raw.run_id = 1;
-  raw.first_index = k * samples;
-  raw.samples = samples;
-  for (int i = 0; i < samples; ++i) raw.codes.push_back(std::int32_t(rng() % (1u << 24)) - (1 << 23));
-  b.raw.push_back(std::move(raw));
-  ChannelRows rows;
-  rows.channel = 0;
-  rows.run_id = 1;
-  rows.calibration_id = calibration_id;
-  rows.output.series.push_back(chain::SeriesPoint{k * samples, samples, -1, 1, 0, 0.5, double(k + 1), 0.1});
-  chain::TotalSnapshot t;
-  t.last_index = k * samples + samples - 1;
-  t.total = double(k + 1);
-  t.state.last_index = t.last_index;
-  rows.checkpoint = t;
-  b.channels.push_back(std::move(rows));
-  return b;
-}
-
-// Waits for a state of the writer thread (not a timing check: the deadline only stops a hung test).
-template <class Pred>
-bool eventually(Pred pred) {
-  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(20);
-  while (std::chrono::steady_clock::now() < deadline) {
-    if (pred()) return true;
-    std::this_thread::sleep_for(std::chrono::milliseconds(2));
-  }
-  return pred();
-}
+// Waits for a state of the writer thread, re-checked after each of its cycles (no deadline:
+// ctest's timeout stops a hung test, and a slow machine only makes the wait longer).
+bool eventually(Writer& w, const std::function<bool(const WriterCounters&)>& pred) { return w.wait_until(pred); }
 
 double count_events(const std::string& path, const char* kind) {
   return scalar(path, std::string("SELECT count(*) FROM event WHERE kind = '") + kind + "'");
@@ -63,13 +31,19 @@ double count_events(const std::string& path, const char* kind) {
 }  // namespace
 
 TEST_CASE("writer: a full file stops raw writing first, raises the event, and recovers") {
+  // Deterministic whatever the machine's speed: batches go in one at a time, each waited for,
+  // until the cap stops raw writing; then the cap is raised by a fixed 64 KiB that raw blocks
+  // cannot use (raw stays stopped until a probe, which needs the injected clock to move), so
+  // the derived rows that follow always fit, however close to the cap the raw blocks came.
   TempDir dir("disk");
   const std::string path = dir.file("full.db");
   std::atomic<double> now{kT0};
   WriterSettings settings;
   settings.commit_interval = std::chrono::milliseconds(1);
+  settings.max_retry_interval = std::chrono::milliseconds(8);
   settings.full_retry_interval_s = 1.0;
-  settings.max_file_bytes = 400 * 1024;
+  const std::uint64_t cap = 400 * 1024;
+  settings.max_file_bytes = cap;
   std::unique_ptr<Writer> w;
   REQUIRE(Writer::open(path, settings, [&] { return now.load(); }, w,
                        [] { return std::optional<std::uint64_t>(1ull << 40); })
@@ -79,23 +53,33 @@ TEST_CASE("writer: a full file stops raw writing first, raises the event, and re
   w->start();
   std::mt19937 rng(1);
   std::uint64_t k = 0;
-  // Fill until the cap stops raw writing (each block is about 3.5 KiB encoded).
-  for (; k < 2000 && !w->counters().raw_stopped; ++k) {
+  // Fill until the cap stops raw writing (each block is about 3.5 KiB encoded, so ~110 fit).
+  bool stopped = false;
+  for (; k < 2000 && !stopped; ++k) {
     w->submit(make_batch(cal.id, k, 1000, rng, k == 0));
-    std::this_thread::sleep_for(std::chrono::milliseconds(1));
+    const std::uint64_t last = k * 1000 + 999;
+    // Either this batch is committed (with its raw block, or without it once raw stopped),
+    // or raw stopped and its derived rows wait for room.
+    REQUIRE(eventually(*w, [&](const WriterCounters& c) {
+      return committed_to(c, last) || (c.raw_stopped && c.consecutive_failures > 0);
+    }));
+    stopped = w->counters().raw_stopped;
   }
-  REQUIRE(eventually([&] { return w->counters().raw_stopped; }));
+  REQUIRE(stopped);
   CHECK(w->counters().disk_full_errors >= 1);
+  CHECK(w->counters().raw_blocks_written > 50);
+  w->set_max_file_bytes(cap + 64 * 1024);
   // Derived rows and checkpoints carry on without raw blocks.
   const std::uint64_t shed_before = w->counters().raw_blocks_shed_disk;
   for (int i = 0; i < 20; ++i, ++k) w->submit(make_batch(cal.id, k, 1000, rng, false));
-  REQUIRE(eventually([&] { return w->counters().committed_last_index[0] == k * 1000 - 1; }));
-  CHECK(w->counters().raw_blocks_shed_disk >= shed_before + 20);
+  REQUIRE(eventually(*w, [&](const WriterCounters& c) { return committed_to(c, k * 1000 - 1); }));
+  CHECK(w->counters().raw_stopped);
+  CHECK(w->counters().raw_blocks_shed_disk == shed_before + 20);
   // Space returns: the next probe (after full_retry_interval) writes raw again.
   w->set_max_file_bytes(0);
   now = kT0 + 10;
   for (int i = 0; i < 5; ++i, ++k) w->submit(make_batch(cal.id, k, 1000, rng, false));
-  REQUIRE(eventually([&] { return !w->counters().raw_stopped && w->counters().committed_last_index[0] == k * 1000 - 1; }));
+  REQUIRE(eventually(*w, [&](const WriterCounters& c) { return !c.raw_stopped && committed_to(c, k * 1000 - 1); }));
   const std::uint64_t raw_written = w->counters().raw_blocks_written;
   for (int i = 0; i < 5; ++i, ++k) w->submit(make_batch(cal.id, k, 1000, rng, false));
   w->stop();
@@ -107,12 +91,7 @@ TEST_CASE("writer: a full file stops raw writing first, raises the event, and re
   CHECK(scalar(path, "SELECT count(*) FROM series_point") == double(k));  // no derived row lost
   CHECK(scalar(path, "SELECT total FROM total_checkpoint WHERE channel = 0") == double(k));
   CHECK(scalar(path, "SELECT count(*) FROM raw_block") == double(c.raw_blocks_written));
-  auto db = open_read_only(path);
-  Statement st;
-  REQUIRE(db->prepare("PRAGMA integrity_check", st).ok());
-  bool row = false;
-  REQUIRE(st.step(&row).ok());
-  CHECK(st.column_text(0) == "ok");
+  CHECK(integrity(path) == "ok");
 }
 
 TEST_CASE("writer: below the free-disk floor raw blocks are shed with an event until space returns") {
@@ -133,7 +112,7 @@ TEST_CASE("writer: below the free-disk floor raw blocks are shed with an event u
   std::uint64_t k = 0;
   const auto submit_and_wait = [&](int n) {
     for (int i = 0; i < n; ++i, ++k) w->submit(make_batch(cal.id, k, 200, rng, k == 0));
-    REQUIRE(eventually([&] { return w->counters().committed_last_index[0] == k * 200 - 1; }));
+    REQUIRE(eventually(*w, [&](const WriterCounters& c) { return committed_to(c, k * 200 - 1); }));
   };
   submit_and_wait(5);
   CHECK(w->counters().raw_blocks_written == 5);
@@ -175,7 +154,7 @@ TEST_CASE("writer: the WAL file stays bounded while a reader keeps reading") {
   for (std::uint64_t k = 0; k < batches; ++k) {
     w->submit(make_batch(cal.id, k, 10000, rng, k == 0));
     if (k % 20 == 19) {
-      REQUIRE(eventually([&] { return w->counters().committed_last_index[0] == k * 10000 + 9999; }));
+      REQUIRE(eventually(*w, [&](const WriterCounters& c) { return committed_to(c, k * 10000 + 9999); }));
       if (!reader) REQUIRE(Reader::open(path, reader).ok());
       std::vector<CheckpointRow> rows;
       REQUIRE(reader->checkpoints(rows).ok());
@@ -214,11 +193,11 @@ TEST_CASE("writer: retention deletes each tier's rows older than its keep time a
   std::mt19937 rng(4);
   // 120 one-second blocks (1000 samples at 1 ms), indices from the run's start.
   for (std::uint64_t k = 0; k < 120; ++k) w->submit(make_batch(cal.id, k, 1000, rng, k == 0));
-  REQUIRE(eventually([&] { return w->counters().committed_last_index[0] == 120 * 1000 - 1; }));
+  REQUIRE(eventually(*w, [&](const WriterCounters& c) { return committed_to(c, 120 * 1000 - 1); }));
   CHECK(scalar(path, "SELECT count(*) FROM raw_block") == 120);
   now = kT0 + 120;  // the newest data is now 0..1 s old, the oldest 120 s
   w->submit(make_batch(cal.id, 120, 1000, rng, false));
-  REQUIRE(eventually([&] { return w->counters().retention_passes >= 2 && w->counters().commits >= 2; }));
+  REQUIRE(eventually(*w, [&](const WriterCounters& c) { return c.retention_passes >= 2 && c.commits >= 2; }));
   w->stop();
   // Kept: blocks ending at or after now - keep.
   CHECK(scalar(path, "SELECT min(first_index) FROM raw_block") == 90 * 1000);
