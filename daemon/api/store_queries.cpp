@@ -52,17 +52,30 @@ Status seek_point(storage::Database& db, const char* sql, std::int64_t run_id, i
   return Status::success();
 }
 
-// The coarsest rollup tier whose buckets tile `bucket_samples` exactly and are
-// whole series points; 0: read the series points themselves.
-std::uint64_t tier_for(std::uint64_t bucket_samples, std::uint64_t stride, double sample_period_s,
-                       std::int64_t& width_s) {
-  width_s = 0;
-  std::uint64_t best = 0;
-  for (const std::int64_t w_s : storage::rollup::kWidthsS) {
-    const std::uint64_t w = storage::rollup::width_samples(w_s, sample_period_s);
-    if (w <= bucket_samples && bucket_samples % w == 0 && w % stride == 0 && w > stride) best = w, width_s = w_s;
+// The number of samples per bucket for a window of [lo, hi] in at most
+// max_points buckets: span / max_points rounded up, or span / (max_points - 1)
+// rounded up when the first lets max_points + 1 buckets overlap (buckets are
+// aligned to multiples of their size); never finer than the series points.
+std::uint64_t bucket_for(std::uint64_t lo, std::uint64_t hi, std::size_t max_points, std::uint64_t stride) {
+  const std::uint64_t span = hi - lo + 1;
+  const std::uint64_t n = std::max<std::size_t>(1, max_points);
+  auto overlapping = [&](std::uint64_t b) { return hi / b - lo / b + 1; };
+  std::uint64_t b = std::max<std::uint64_t>(stride, (span + n - 1) / n);
+  if (overlapping(b) > n) b = std::max<std::uint64_t>(stride, n > 1 ? (span + n - 2) / (n - 1) : hi + 1);
+  return b;
+}
+
+// Rollup widths (in samples) a window of `bucket_samples` may read, coarsest
+// first: every tier no wider than the bucket and wider than the series points
+// (whose multiples they are).
+std::vector<std::pair<std::int64_t, std::uint64_t>> tiers_for(std::uint64_t bucket_samples, std::uint64_t stride,
+                                                              double sample_period_s) {
+  std::vector<std::pair<std::int64_t, std::uint64_t>> out;
+  for (auto it = storage::rollup::kWidthsS.rbegin(); it != storage::rollup::kWidthsS.rend(); ++it) {
+    const std::uint64_t w = storage::rollup::width_samples(*it, sample_period_s);
+    if (w <= bucket_samples && w > stride && w % stride == 0) out.emplace_back(*it, w);
   }
-  return best;
+  return out;
 }
 }  // namespace
 
@@ -103,27 +116,7 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
   out.lo = *lo;
   out.hi = *hi;
   stride = std::max<std::uint64_t>(1, stride);
-  std::int64_t width_s = 0;
-  std::uint64_t tier = 0;
-  if (bucket_samples > 0) {
-    out.bucket_samples = bucket_samples;
-    tier = tier_for(bucket_samples, stride, period_s, width_s);
-  } else {
-    // Buckets are whole tier buckets (or whole series points), aligned to
-    // multiples of their size in the run's index, and at most max_points of
-    // them overlap [lo, hi].
-    const std::uint64_t span = out.hi - out.lo + 1;
-    const std::uint64_t wanted = std::max<std::uint64_t>(1, (span + max_points - 1) / std::max<std::size_t>(1, max_points));
-    std::uint64_t unit = stride;
-    for (const std::int64_t w_s : storage::rollup::kWidthsS) {
-      const std::uint64_t w = storage::rollup::width_samples(w_s, period_s);
-      if (w <= wanted && w % stride == 0) unit = std::max(unit, w);
-    }
-    std::uint64_t b = (wanted + unit - 1) / unit * unit;
-    while (out.hi / b - out.lo / b + 1 > max_points) b += unit;
-    out.bucket_samples = b;
-    tier = tier_for(b, stride, period_s, width_s);
-  }
+  out.bucket_samples = bucket_samples > 0 ? bucket_samples : bucket_for(out.lo, out.hi, max_points, stride);
   const std::uint64_t B = out.bucket_samples;
   const std::uint64_t first_bucket = std::max(out.lo, start.value_or(out.lo)) / B;
   const std::uint64_t last_bucket = std::min(out.hi / B, first_bucket + page_points - 1);
@@ -131,47 +124,88 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
   const std::uint64_t page_begin = first_bucket * B;
   const std::uint64_t page_end = last_bucket * B + (B - 1);
 
-  // The total just before the page, so the first bucket's increase is right.
-  double before = 0.0;
-  bool have_before = false;
-  {
-    Statement st;
-    if (Status s = db_->prepare(
-            "SELECT total FROM series_point WHERE run_id = ?1 AND channel = ?2 AND first_index < ?3"
-            " AND derivation = " ACCRUE_READ_DERIVATION " ORDER BY first_index DESC LIMIT 1",
-            st);
+  // The coarsest tier no wider than a bucket that has rows in the page (a
+  // store written before a width existed lacks it: one index seek each);
+  // else the series points. A bucket holds the rows that start in it.
+  std::int64_t width_s = 0;
+  std::uint64_t tier = 0;
+  for (const auto& [w_s, w] : tiers_for(B, stride, period_s)) {
+    Statement probe;
+    if (Status s = db_->prepare("SELECT 1 FROM rollup WHERE run_id = ?1 AND channel = ?2 AND width_s = ?3"
+                                " AND bucket BETWEEN ?4 AND ?5 AND derivation = " ACCRUE_READ_DERIVATION " LIMIT 1",
+                                probe);
         !s.ok())
       return s;
-    st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(page_begin));
-    bind_derivation(st, derivation);
+    probe.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, w_s);
+    probe.bind(4, clamp64(page_begin / w)).bind(5, clamp64(page_end / w));
+    bind_derivation(probe, derivation);
     bool row = false;
-    if (Status s = st.step(&row); !s.ok()) return s;
-    if (row) before = st.column_double(0), have_before = true;
+    if (Status s = probe.step(&row); !s.ok()) return s;
+    if (row) {
+      width_s = w_s, tier = w;
+      break;
+    }
   }
+
   Statement st;
   if (tier > 0) {
     if (Status s = db_->prepare(
-            "SELECT o.first_index, o.samples, o.min_v, o.max_v, o.sum_v, o.last_v, o.total, o.total_u, c.quantity, c.unit"
-            " FROM rollup o JOIN calibration c USING (calibration_id)"
-            " WHERE o.run_id = ?1 AND o.channel = ?2 AND o.width_s = ?3 AND o.bucket BETWEEN ?4 AND ?5"
-            " AND o.derivation = " ACCRUE_READ_DERIVATION " ORDER BY o.bucket",
+            "SELECT first_index, samples, min_v, max_v, sum_v, last_v, total, total_u, calibration_id FROM rollup"
+            " WHERE run_id = ?1 AND channel = ?2 AND width_s = ?3 AND bucket BETWEEN ?4 AND ?5"
+            " AND first_index BETWEEN ?6 AND ?7 AND derivation = " ACCRUE_READ_DERIVATION " ORDER BY bucket",
             st);
         !s.ok())
       return s;
     st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, width_s);
     st.bind(4, clamp64(page_begin / tier)).bind(5, clamp64(page_end / tier));
+    st.bind(6, clamp64(page_begin)).bind(7, clamp64(page_end));
   } else {
     if (Status s = db_->prepare(
-            "SELECT p.first_index, p.samples, p.min_v, p.max_v, p.mean_v * p.samples, p.last_v, p.total, p.total_u,"
-            " c.quantity, c.unit FROM series_point p JOIN calibration c USING (calibration_id)"
-            " WHERE p.run_id = ?1 AND p.channel = ?2 AND p.first_index BETWEEN ?3 AND ?4"
-            " AND p.derivation = " ACCRUE_READ_DERIVATION " ORDER BY p.first_index",
+            "SELECT first_index, samples, min_v, max_v, mean_v * samples, last_v, total, total_u, calibration_id"
+            " FROM series_point WHERE run_id = ?1 AND channel = ?2 AND first_index BETWEEN ?6 AND ?7"
+            " AND derivation = " ACCRUE_READ_DERIVATION " ORDER BY first_index",
             st);
         !s.ok())
       return s;
-    st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(page_begin)).bind(4, clamp64(page_end));
+    st.bind(1, run_id).bind(2, std::int64_t(channel)).bind(6, clamp64(page_begin)).bind(7, clamp64(page_end));
   }
   bind_derivation(st, derivation);
+  out.buckets.reserve(std::min<std::uint64_t>(last_bucket - first_bucket + 1, 1u << 16));
+
+  // The total just before the page's first row, so the first bucket's
+  // increase is right: one index seek, made when that row is known.
+  double before = 0.0;
+  bool have_before = false;
+  std::int64_t calibration_id = -1;
+  auto total_before = [&](std::uint64_t index) -> Status {
+    Statement bt;
+    if (Status s = db_->prepare(
+            "SELECT total FROM series_point WHERE run_id = ?1 AND channel = ?2 AND first_index < ?3"
+            " AND derivation = " ACCRUE_READ_DERIVATION " ORDER BY first_index DESC LIMIT 1",
+            bt);
+        !s.ok())
+      return s;
+    bt.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(index));
+    bind_derivation(bt, derivation);
+    bool row = false;
+    if (Status s = bt.step(&row); !s.ok()) return s;
+    if (row) {
+      before = bt.column_double(0), have_before = true;
+      return Status::success();
+    }
+    // The run's first point counts from itself (a tier row holds only its last point's total).
+    Statement ft;
+    if (Status s = db_->prepare("SELECT total FROM series_point WHERE run_id = ?1 AND channel = ?2 AND first_index = ?3"
+                                " AND derivation = " ACCRUE_READ_DERIVATION,
+                                ft);
+        !s.ok())
+      return s;
+    ft.bind(1, run_id).bind(2, std::int64_t(channel)).bind(3, clamp64(index));
+    bind_derivation(ft, derivation);
+    if (Status s = ft.step(&row); !s.ok()) return s;
+    if (row) before = ft.column_double(0), have_before = true;
+    return Status::success();
+  };
   double sum_v = 0.0;
   std::uint64_t current = UINT64_MAX;
   auto close_bucket = [&] {
@@ -181,32 +215,47 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
     b.delta = b.total - before;
     before = b.total;
   };
-  const Status rows = each_row(st, [&](const Statement& r) {
-    const std::uint64_t index = std::uint64_t(r.column_int(0));
+  for (bool first = true;; first = false) {
+    bool row = false;
+    if (Status s = st.step(&row); !s.ok()) return s;
+    if (!row) break;
+    const std::uint64_t index = std::uint64_t(st.column_int(0));
+    if (first) {
+      if (Status s = total_before(index); !s.ok()) return s;
+      calibration_id = st.column_int(8);
+    }
     const std::uint64_t bucket = index / B;
-    if (!have_before) before = r.column_double(6) , have_before = true;  // the run's first point counts from itself
+    const double min_v = st.column_double(2), max_v = st.column_double(3);
     if (bucket != current) {
       close_bucket();
       current = bucket;
       Bucket b;
       b.first_index = bucket * B;
-      b.min_v = r.column_double(2);
-      b.max_v = r.column_double(3);
+      b.min_v = min_v;
+      b.max_v = max_v;
       out.buckets.push_back(b);
       sum_v = 0.0;
-      if (out.quantity.empty()) out.quantity = r.column_text(8), out.unit = r.column_text(9);
     }
     Bucket& b = out.buckets.back();
-    b.samples += std::uint64_t(r.column_int(1));
-    b.min_v = std::min(b.min_v, r.column_double(2));
-    b.max_v = std::max(b.max_v, r.column_double(3));
-    sum_v += r.column_double(4);
-    b.last_v = r.column_double(5);
-    b.total = r.column_double(6);
-    b.total_u = r.column_double(7);
-  });
-  if (!rows.ok()) return rows;
+    b.samples += std::uint64_t(st.column_int(1));
+    b.min_v = std::min(b.min_v, min_v);
+    b.max_v = std::max(b.max_v, max_v);
+    sum_v += st.column_double(4);
+    b.last_v = st.column_double(5);
+    b.total = st.column_double(6);
+    b.total_u = st.column_double(7);
+  }
   close_bucket();
+  // The quantity and unit of the page's first row's calibration (one lookup, not a join per row).
+  if (calibration_id >= 0) {
+    Statement ct;
+    if (Status s = db_->prepare("SELECT quantity, unit FROM calibration WHERE calibration_id = ?", ct); !s.ok())
+      return s;
+    ct.bind(1, calibration_id);
+    bool row = false;
+    if (Status s = ct.step(&row); !s.ok()) return s;
+    if (row) out.quantity = ct.column_text(0), out.unit = ct.column_text(1);
+  }
   return Status::success();
 }
 

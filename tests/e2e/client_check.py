@@ -181,7 +181,8 @@ print("tables and errors: ok")
 COLUMNS = {"index (sample)": "index", "samples": "samples", "mean (V)": "mean_v", "min (V)": "min_v",
            "max (V)": "max_v", "last (V)": "last_v", "delta (C)": "delta", "total (C)": "total",
            "total_u (C)": "total_u", "rate (C/s)": "rate"}
-UTC = re.compile(r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{3}Z$")
+# RFC 3339 (section 5.6): the fraction is optional; storage::rfc3339_utc leaves out ".000".
+UTC = re.compile(r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d(\.\d{3})?Z$")
 
 
 def api_window(params):
@@ -196,7 +197,8 @@ def api_window(params):
 
 
 def utc_seconds(text):
-    return datetime.datetime.strptime(text, "%Y-%m-%dT%H:%M:%S.%fZ").replace(tzinfo=datetime.timezone.utc).timestamp()
+    fmt = "%Y-%m-%dT%H:%M:%S.%fZ" if "." in text else "%Y-%m-%dT%H:%M:%SZ"
+    return datetime.datetime.strptime(text, fmt).replace(tzinfo=datetime.timezone.utc).timestamp()
 
 
 def check_export(argv, params, min_pages=1):
@@ -237,7 +239,11 @@ t_from = datetime.datetime.fromtimestamp(start + 600, datetime.timezone.utc).str
 t_to = datetime.datetime.fromtimestamp(start + 1800, datetime.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
 _, body = check_export(["--from", t_from, "--to", t_to, "--points", "100"],
                        {"from": t_from, "to": t_to, "max_points": 100, "select": "all"})
-ok(abs(utc_seconds(body[0][0]) - (start + 600)) <= 1.0, f"window from {t_from} starts at {body[0][0]}")
+# Buckets are aligned to multiples of their size and come whole (docs/api.md):
+# the first starts at `from` or up to one bucket before it.
+bucket_s = (int(body[1][1]) - int(body[0][1])) * api.call("runs")["runs"][-1]["sample_period_s"]
+ok(-bucket_s - 1.0 <= utc_seconds(body[0][0]) - (start + 600) <= 1.0,
+   f"window from {t_from} starts at {body[0][0]} (buckets of {bucket_s} s)")
 print(f"export, {t_from} to {t_to}, {len(body)} rows: ok")
 _, body = check_export(["--points", "6000"], {"max_points": 6000, "select": "all"}, min_pages=2)
 print(f"export across continuation pages, {len(body)} rows: ok")

@@ -7,6 +7,13 @@
 # (4) 1000-point window queries over 1 min .. 7 days of a 7-day 1 kS/s store,
 # (5) a field load of 4 channels at 10 kS/s (tools/bench/field_load.sh),
 # and writes tools/bench/RESULTS.md. Not a test: figures depend on the machine.
+# Knobs (environment; defaults in brackets): ACCRUE_BENCH_BUILD_DIR [build-bench],
+# ACCRUE_BENCH_SECONDS [60] and ACCRUE_BENCH_RATE [1000000] for the paced end-to-end run,
+# ACCRUE_BENCH_FAST_SAMPLES [28800000] for the unpaced one, ACCRUE_BENCH_NAIVE_SAMPLES [600000],
+# ACCRUE_BENCH_WINDOW_DAYS [7] and ACCRUE_BENCH_WINDOW_QUERIES [200] per span,
+# ACCRUE_BENCH_FIELD_PACED_S [60] and ACCRUE_BENCH_FIELD_HOURS [24] (field_load.sh).
+# With the defaults on a quiet 2-core machine: about 40 min (the 7-day window store
+# ~10 min, the 24-hour field load ~25 min unpaced).
 set -euo pipefail
 top=$(cd "$(dirname "$0")/../.." && pwd)
 "$top/scripts/bootstrap.sh"
@@ -131,7 +138,7 @@ lines = [
  f"| the same store, whole file (raw + series + rollups + segments + events) | {wb/(ws*1000):.2f} bytes/sample | — |",
 ]
 for name, r in win.items():
-    lines.append(f"| window of 1000 points over {name}: p50 / p99 ({r['queries']} queries, {r['points_max']} points) "
+    lines.append(f"| window of 1000 points over {name}: p50 / p99 ({r['queries']} queries, {r['points_min']}..{r['points_max']} points) "
                  f"| {r['p50_ms']:.2f} / {r['p99_ms']:.2f} ms | ≤ 5 / ≤ 20 ms |")
 if "7 days" in win and "1 min" in win:
     lines.append(f"| window p50, 7 days ÷ 1 min | {win['7 days']['p50_ms']/win['1 min']['p50_ms']:.2f}× | ≤ 3× |")
