@@ -1,5 +1,6 @@
 #include "daemon/ingest.hpp"
 
+#include <algorithm>
 #include <cmath>
 
 
@@ -164,6 +165,7 @@ void Ingest::start_run(const BoardIdentity& id, double receive_unix, std::option
     run.rows.push_back(std::move(rows));
   }
   run_ = std::move(run);
+  zero_windows_done_.assign(config_.zero_windows.size(), false);
   if (resumed) {
     // What the daemon missed while it was down: the next segment's gap estimate covers it.
     std::uint64_t last = 0;
@@ -225,10 +227,72 @@ void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
   raw.codes = b.codes;  // the writer encodes them on its own thread
   batch_.raw.push_back(std::move(raw));
 
+  if (b.samples_per_channel > 0) apply_zero_windows(b.first_index + b.samples_per_channel - 1);
   for (std::size_t c = 0; c < run.chains.size(); ++c) {
     run.chains[c]->process(b.first_index, b.status, b.codes.data() + c, b.samples_per_channel, b.channel_count,
                            run.rows[c].output);
     store_chain_events(run, c);
+  }
+  if (block_observer_ && b.samples_per_channel > 0) observe_block(b);
+}
+
+void Ingest::observe_block(const protocol::SampleBlock& b) {
+  const Run& run = *run_;
+  BlockObservation o;
+  o.run_id = run.run_id;
+  o.last_index = b.first_index + b.samples_per_channel - 1;
+  o.board_time_s = double(o.last_index) * identity_->sample_period_s;
+  o.utc = clock_model_->utc_of(o.last_index);
+  o.status = b.status;
+  o.capabilities = identity_->capabilities;
+  for (std::size_t c = 0; c < run.chains.size(); ++c) {
+    const chain::AdcCalibration& adc = run.chains[c]->calibration().adc;
+    std::int32_t lo = b.codes[c], hi = b.codes[c];
+    for (std::size_t i = c; i < b.codes.size(); i += b.channel_count) {
+      lo = std::min(lo, b.codes[i]);
+      hi = std::max(hi, b.codes[i]);
+    }
+    const double fs = adc.full_scale_output_v();
+    const double peak_v = std::max(std::fabs(adc.to_volts(lo)), std::fabs(adc.to_volts(hi)));
+    o.level_fraction.push_back(fs > 0 ? peak_v / fs : 0.0);
+    o.full_scale_v.push_back(fs);
+  }
+  block_observer_(o);
+}
+
+void Ingest::apply_zero_windows(std::uint64_t last_index) {
+  if (!run_ || !clock_model_ || config_.zero_windows.empty()) return;
+  if (zero_windows_done_.size() != config_.zero_windows.size())
+    zero_windows_done_.assign(config_.zero_windows.size(), false);
+  const double utc_last = clock_model_->utc_of(last_index);
+  // UTC -> sample index through the run's clock model (fit offset and skew),
+  // taken when the window starts, so the fit is the current one.
+  constexpr std::uint64_t span = 1u << 20;
+  const double utc_per_sample = (clock_model_->utc_of(last_index + span) - utc_last) / double(span);
+  if (!(utc_per_sample > 0)) return;
+  for (std::size_t i = 0; i < config_.zero_windows.size(); ++i) {
+    const ZeroWindow& w = config_.zero_windows[i];
+    if (zero_windows_done_[i] || utc_last < w.from_unix) continue;
+    zero_windows_done_[i] = true;
+    const double from = double(last_index) + (w.from_unix - utc_last) / utc_per_sample;
+    const double to = double(last_index) + (w.to_unix - utc_last) / utc_per_sample;
+    if (to < 0) continue;  // before this run's first sample
+    const std::uint64_t from_i = from <= 0 ? 0 : std::uint64_t(std::ceil(from));
+    const std::uint64_t to_i = std::uint64_t(std::floor(to));
+    if (to_i < from_i) continue;
+    std::vector<std::optional<int>> targets;
+    if (w.channels.empty()) targets.push_back(std::nullopt);
+    for (int ch : w.channels)
+      if (std::size_t(ch) < run_->chains.size()) targets.push_back(ch);
+    for (const std::optional<int>& ch : targets) {
+      const std::optional<std::uint64_t> used = mark_quiet(ch, from_i, to_i);
+      if (!used) continue;  // wholly behind the chains (a window from before this run)
+      // Recorded like a quiet window marked through the API, so plots and reprocessing see it alike.
+      const nlohmann::json detail = {{"from_index", from_i}, {"to_index", to_i},
+                                     {"note", "config zero_windows[" + std::to_string(i) + "]"},
+                                     {"baseline_from_index", *used}};
+      event("quiet_window", detail.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace), from_i, ch);
+    }
   }
 }
 
@@ -271,6 +335,8 @@ void Ingest::end_run(const std::string& reason) {
 
 void Ingest::reconfigure(const DaemonConfig& config) {
   const bool calibrations_changed = config.channels != config_.channels;
+  // Changed zero windows are all looked at again (those already behind the chains change nothing).
+  if (config.zero_windows != config_.zero_windows) zero_windows_done_.assign(config.zero_windows.size(), false);
   config_.channels = config.channels;
   config_.reset_schedule = config.reset_schedule;
   config_.zero_windows = config.zero_windows;

@@ -15,6 +15,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "daemon/block_observation.hpp"
 #include "daemon/chain/channel_chain.hpp"
 #include "daemon/clock_model.hpp"
 #include "daemon/log.hpp"
@@ -75,6 +76,8 @@ class Ingest {
   // baseline. Returns the first index the fits will use; nullopt when no run
   // is active or the interval is already behind every chain.
   std::optional<std::uint64_t> mark_quiet(std::optional<int> channel, std::uint64_t from_index, std::uint64_t to_index);
+  // Called after every accepted sample block with what the reset schedule needs (ResetDriver).
+  void set_block_observer(std::function<void(const BlockObservation&)> observer) { block_observer_ = std::move(observer); }
   // Called with every event as it is recorded, before it reaches the writer (live subscribers).
   void set_event_listener(std::function<void(const storage::EventRow&)> listener) { event_listener_ = std::move(listener); }
 
@@ -98,6 +101,10 @@ class Ingest {
   void on_block(const protocol::SampleBlock& b, double receive_unix);
   void on_event(const protocol::BoardEvent& e, double receive_unix);
   void store_chain_events(Run& run, std::size_t channel);
+  // Config zero_windows (UTC spans the user marks quiet) become quiet windows
+  // of the live chains once the block about to be processed reaches their start.
+  void apply_zero_windows(std::uint64_t block_last_index);
+  void observe_block(const protocol::SampleBlock& b);
   void start_run(const protocol::BoardIdentity& id, double receive_unix, std::optional<std::uint64_t> first_index);
   chain::Calibration calibration_for(int channel, const protocol::BoardIdentity& id) const;
   void event(std::string kind, std::string detail, std::optional<std::uint64_t> index = std::nullopt,
@@ -132,6 +139,8 @@ class Ingest {
   static constexpr std::size_t kMaxWaitingSamples = 1u << 20;
   std::size_t waiting_samples_ = 0;
   std::function<void(const storage::EventRow&)> event_listener_;
+  std::function<void(const BlockObservation&)> block_observer_;
+  std::vector<bool> zero_windows_done_;  // per config zero window, this run; cleared by start_run and reconfigure
 };
 
 }  // namespace accrue::daemon

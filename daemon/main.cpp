@@ -24,6 +24,7 @@
 #include "daemon/options.hpp"
 #include "daemon/port_finder.hpp"
 #include "daemon/reload.hpp"
+#include "daemon/reset_driver.hpp"
 #include "daemon/serial_link.hpp"
 #include "daemon/service.hpp"
 #include "daemon/stop_deadline.hpp"
@@ -284,6 +285,16 @@ int main(int argc, char** argv) {
     }
   });
   ingest.set_ack_handler([&](const protocol::CommandAck& a, double t) { commands.on_ack(a, t); });
+  // The config's reset schedule, carried out through BoardCommands (acks, retries).
+  ResetDriver resets(
+      config.reset_schedule,
+      [&](protocol::CommandOp op, std::uint32_t argument, ResetDriver::Done done) {
+        return commands.submit(op, argument, unix_now(), std::move(done));
+      },
+      [&](const std::string& kind, const std::string& detail, std::uint64_t index) {
+        ingest.record_event(kind, detail, index);
+      });
+  ingest.set_block_observer([&](const BlockObservation& b) { resets.observe(b); });
   LinkSettings link_settings{config.device, unsigned(config.baud), config.reconnect_max_s,
                              to_string(config.parity), to_string(config.flow_control)};
   SerialLink link(
@@ -344,6 +355,7 @@ int main(int argc, char** argv) {
     nlohmann::json committed = nlohmann::json::object();
     for (const auto& [ch, index] : w.committed_last_index) committed[std::to_string(ch)] = index;
     j["link"] = link.status();
+    j["reset_schedule"] = resets.status();
     const auto& cc = commands.counters();
     j["commands"] = {{"pending", commands.pending()}, {"submitted", cc.submitted}, {"sends", cc.sends},
                      {"retries", cc.retries}, {"acked", cc.acked}, {"timed_out", cc.timed_out},
@@ -486,6 +498,7 @@ int main(int argc, char** argv) {
         config = plan.next;
         log.set_threshold(config.log_level);
         ingest.reconfigure(config);
+        resets.reconfigure(config.reset_schedule);
         log.notice("reload: applied " + (plan.applied.empty() ? std::string("no changes") : join(plan.applied)));
         notifier.status("config reloaded");
       }

@@ -57,6 +57,24 @@ int cmd_status(const CommonOptions& o, const std::vector<std::string>&) {
   } else {
     std::printf("run       none active\n");
   }
+  if (s.contains("reset_schedule") && s["reset_schedule"].is_object()) {
+    // One reset switch per board: the schedule, its next and last reset, and the command counts.
+    const json& rs = s["reset_schedule"];
+    std::string next = "none planned", last = "none seen";
+    if (rs["next_reset"].is_object())
+      next = rs["next_reset"].value("why", "") +
+             (rs["next_reset"]["utc"].is_string() ? " at " + rs["next_reset"]["utc"].get<std::string>() : std::string());
+    if (rs["last_reset"].is_object())
+      last = rs["last_reset"].value("utc", "") + " (" + rs["last_reset"].value("why", "") + ")";
+    std::printf("reset     %s; next %s; last %s; commanded %llu, acked %llu, failed %llu\n",
+                rs.value("enabled", false) ? "scheduled" : "no schedule (board's own resets followed)", next.c_str(),
+                last.c_str(), (unsigned long long)rs.value("commanded", 0ull), (unsigned long long)rs.value("acked", 0ull),
+                (unsigned long long)rs.value("failed", 0ull));
+    for (const auto& ch : rs["channels"])
+      if (ch["threshold_v"].is_number())
+        std::printf("  ch %d   at %.1f %% of full scale, threshold %s\n", ch.value("channel", 0),
+                    100.0 * ch.value("level_fraction", 0.0), format_si(ch.value("threshold_v", 0.0), "V").c_str());
+  }
   const json& d = s["decoder"];
   std::printf("decoder   %llu frames, %llu bytes discarded, %llu bad CRC\n",
               (unsigned long long)d.value("frames_ok", 0ull), (unsigned long long)d.value("discarded_bytes", 0ull),
