@@ -8,10 +8,8 @@
 # sample the daemon accepted (the same count as its "stopped" line).
 set -euo pipefail
 sim=$1 daemon=$2 client=$3
-work=$(mktemp -d /tmp/accrue-dbdel.XXXXXX)
-pids=()
-cleanup() { for p in "${pids[@]}"; do kill -9 "$p" 2>/dev/null || true; done; wait 2>/dev/null || true; rm -rf "$work"; }
-trap cleanup EXIT
+source "$(dirname "$0")/lib/harness.bash"
+e2e_setup dbdel hard
 wait_for() { for _ in $(seq 600); do eval "$1" && return 0; sleep 0.05; done; echo "timed out: $1"; cat "$work/daemon.err"; exit 1; }
 
 "$sim" --set duration_s=36000 --set seed=9 --speed 5 --link "$work/board" --truth "$work/truth.json" --linger-s 1 \

@@ -127,7 +127,7 @@ TEST_CASE("writer: a database deleted while open is rescued to its path and writ
   CHECK(files >= 1);
 }
 
-TEST_CASE("writer: a file renamed over the database is left alone; the live data moves to a rescued sibling") {
+TEST_CASE("writer: a file renamed over the database is left alone and the live data moves to a rescued sibling") {
   TempDir dir("rescue");
   const std::string path = dir.file("live.db");
   const std::string stranger = dir.file("stranger.db");
