@@ -238,7 +238,9 @@ void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
 
 void Ingest::observe_block(const protocol::SampleBlock& b) {
   const Run& run = *run_;
-  BlockObservation o;
+  BlockObservation& o = observation_;
+  o.level_fraction.clear();
+  o.full_scale_v.clear();
   o.run_id = run.run_id;
   o.last_index = b.first_index + b.samples_per_channel - 1;
   o.board_time_s = double(o.last_index) * identity_->sample_period_s;

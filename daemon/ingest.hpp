@@ -140,6 +140,7 @@ class Ingest {
   std::size_t waiting_samples_ = 0;
   std::function<void(const storage::EventRow&)> event_listener_;
   std::function<void(const BlockObservation&)> block_observer_;
+  BlockObservation observation_;  // reused for every block, so observing allocates nothing once sized
   std::vector<bool> zero_windows_done_;  // per config zero window, this run; cleared by start_run and reconfigure
 };
 

@@ -97,9 +97,9 @@ void ResetDriver::observe(const BlockObservation& b) {
 
   double level = 0.0;
   for (double l : b.level_fraction) level = std::max(level, l);
-  std::vector<chain::ScheduleAction> actions;
-  scheduler_->observe(b.board_time_s, b.utc, level, b.status, actions);
-  for (const auto& a : actions) act(a, b);
+  actions_.clear();
+  scheduler_->observe(b.board_time_s, b.utc, level, b.status, actions_);
+  for (const auto& a : actions_) act(a, b);
 }
 
 void ResetDriver::act(const chain::ScheduleAction& a, const BlockObservation& b) {

@@ -74,7 +74,8 @@ class ResetDriver {
   std::optional<chain::ResetScheduler> scheduler_;  // per run; created at the run's first block
   std::int64_t run_id_ = 0;
   bool have_block_ = false;
-  BlockObservation last_;
+  BlockObservation last_;  // copy-assigned each block: its vectors keep their storage
+  std::vector<chain::ScheduleAction> actions_;  // reused per block (the ingest thread calls observe for every block)
   bool was_resetting_ = false;
   double last_reset_board_s_ = 0.0;  // the interval counts from here (the run's start or the last reset)
   std::optional<std::string> awaiting_reason_;  // a reset we asked for and have not yet seen
