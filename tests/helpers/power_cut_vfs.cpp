@@ -1,5 +1,7 @@
 #include "power_cut_vfs.hpp"
 
+#include "vfs_passthrough.hpp"
+
 #include <algorithm>
 #include <cstring>
 #include <new>
@@ -112,32 +114,35 @@ int x_file_size(sqlite3_file* f, sqlite3_int64* size) {
   return SQLITE_OK;
 }
 
-int x_lock(sqlite3_file* f, int level) { return real(f)->pMethods->xLock(real(f), level); }
-int x_unlock(sqlite3_file* f, int level) { return real(f)->pMethods->xUnlock(real(f), level); }
-int x_check_reserved(sqlite3_file* f, int* out) { return real(f)->pMethods->xCheckReservedLock(real(f), out); }
 int x_file_control(sqlite3_file* f, int op, void* arg) {
   // Size hints and chunk sizes would grow the real file behind the image's back.
   if (shim(f)->state && (op == SQLITE_FCNTL_SIZE_HINT || op == SQLITE_FCNTL_CHUNK_SIZE)) return SQLITE_OK;
   return real(f)->pMethods->xFileControl(real(f), op, arg);
 }
-int x_sector_size(sqlite3_file* f) { return real(f)->pMethods->xSectorSize(real(f)); }
-int x_device_characteristics(sqlite3_file* f) { return real(f)->pMethods->xDeviceCharacteristics(real(f)); }
-int x_shm_map(sqlite3_file* f, int page, int size, int extend, void volatile** out) {
-  return real(f)->pMethods->xShmMap(real(f), page, size, extend, out);
-}
-int x_shm_lock(sqlite3_file* f, int offset, int n, int flags) {
-  return real(f)->pMethods->xShmLock(real(f), offset, n, flags);
-}
-void x_shm_barrier(sqlite3_file* f) { real(f)->pMethods->xShmBarrier(real(f)); }
-int x_shm_unmap(sqlite3_file* f, int delete_flag) { return real(f)->pMethods->xShmUnmap(real(f), delete_flag); }
 
 // Version 2: the shared-memory methods, no memory-mapped I/O (xFetch), so every
 // read of the database goes through x_read and sees the image.
 const sqlite3_io_methods kMethods = {
-    2,         x_close,         x_read,        x_write,     x_truncate,   x_sync,
-    x_file_size, x_lock,        x_unlock,      x_check_reserved, x_file_control, x_sector_size,
-    x_device_characteristics, x_shm_map, x_shm_lock, x_shm_barrier, x_shm_unmap,
-    nullptr,   nullptr};
+    2,  // iVersion
+    x_close,
+    x_read,
+    x_write,
+    x_truncate,
+    x_sync,
+    x_file_size,
+    vfs_passthrough::lock<ShimFile>,
+    vfs_passthrough::unlock<ShimFile>,
+    vfs_passthrough::check_reserved<ShimFile>,
+    x_file_control,
+    vfs_passthrough::sector_size<ShimFile>,
+    vfs_passthrough::device_characteristics<ShimFile>,
+    vfs_passthrough::shm_map<ShimFile>,
+    vfs_passthrough::shm_lock<ShimFile>,
+    vfs_passthrough::shm_barrier<ShimFile>,
+    vfs_passthrough::shm_unmap<ShimFile>,
+    nullptr,  // xFetch
+    nullptr,  // xUnfetch
+};
 
 int x_open(sqlite3_vfs* vfs, const char* name, sqlite3_file* f, int flags, int* out_flags) {
   PowerCutVfs* o = owner_of(vfs);
@@ -191,40 +196,14 @@ int x_delete(sqlite3_vfs* vfs, const char* name, int sync_dir) {
   return o->real_->xDelete(o->real_, name, sync_dir);
 }
 
-int x_access(sqlite3_vfs* vfs, const char* name, int flags, int* out) {
-  return owner_of(vfs)->real_->xAccess(owner_of(vfs)->real_, name, flags, out);
-}
-int x_full_pathname(sqlite3_vfs* vfs, const char* name, int n, char* out) {
-  return owner_of(vfs)->real_->xFullPathname(owner_of(vfs)->real_, name, n, out);
-}
-int x_randomness(sqlite3_vfs* vfs, int n, char* out) { return owner_of(vfs)->real_->xRandomness(owner_of(vfs)->real_, n, out); }
-int x_sleep(sqlite3_vfs* vfs, int us) { return owner_of(vfs)->real_->xSleep(owner_of(vfs)->real_, us); }
-int x_current_time(sqlite3_vfs* vfs, double* out) { return owner_of(vfs)->real_->xCurrentTime(owner_of(vfs)->real_, out); }
-int x_last_error(sqlite3_vfs* vfs, int n, char* out) {
-  return owner_of(vfs)->real_->xGetLastError(owner_of(vfs)->real_, n, out);
-}
-int x_current_time64(sqlite3_vfs* vfs, sqlite3_int64* out) {
-  return owner_of(vfs)->real_->xCurrentTimeInt64(owner_of(vfs)->real_, out);
-}
 
 }  // namespace
 
 PowerCutVfs::PowerCutVfs(Loss loss, std::uint64_t seed) : loss_(loss), rng_(seed) {
   real_ = sqlite3_vfs_find(nullptr);
-  vfs_.iVersion = 2;
-  vfs_.szOsFile = int(sizeof(ShimFile)) + real_->szOsFile;
-  vfs_.mxPathname = real_->mxPathname;
-  vfs_.zName = "accrue_power_cut";
-  vfs_.pAppData = this;
+  vfs_passthrough::install_passthrough(vfs_, this, "accrue_power_cut", int(sizeof(ShimFile)));
   vfs_.xOpen = x_open;
   vfs_.xDelete = x_delete;
-  vfs_.xAccess = x_access;
-  vfs_.xFullPathname = x_full_pathname;
-  vfs_.xRandomness = x_randomness;
-  vfs_.xSleep = x_sleep;
-  vfs_.xCurrentTime = x_current_time;
-  vfs_.xGetLastError = x_last_error;
-  vfs_.xCurrentTimeInt64 = x_current_time64;
   sqlite3_vfs_register(&vfs_, 1);
 }
 
