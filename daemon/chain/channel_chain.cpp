@@ -74,7 +74,22 @@ void ChannelChain::process(std::uint64_t first_index, std::uint8_t status, const
   if (count == 0) return;
   const bool resetting = status & status_bit::reset_active;
   const bool zeroing = status & status_bit::zero_relay;
+  const bool overload = status & status_bit::overload;
+  std::size_t k = 0;
   if (resetting || zeroing) {
+    // PROTOCOL.md §3.2: the switch (or relay) closes just after the first
+    // sample of the block is converted, so that sample is the output the
+    // reset is about to discharge and ends the open segment. Without it the
+    // interval up to it would be dead time, estimated from the rates either
+    // side; at a threshold reset the input is usually what just pushed the
+    // output over, so such estimates would read low at nearly every reset.
+    if (mode_ == Mode::live && samples_seen_ > 0 && first_index == last_index_ + 1) {
+      const double v = to_volts(codes[0]);
+      if (overload) open_flags_ |= segment_flag::clipped;
+      add_to_series(first_index, v, out);
+      add_live(first_index, v, out);
+      k = 1;
+    }
     if (in_quiet_) close_quiet_window(out);
     if (!windows_.empty()) close_segment(out);
     if (in_zero_window_ && !zeroing) close_zero_window(out);
@@ -86,30 +101,13 @@ void ChannelChain::process(std::uint64_t first_index, std::uint8_t status, const
       settle_left_ = settle_samples_;
     }
   }
-  if (status & status_bit::overload) open_flags_ |= segment_flag::clipped;
+  if (overload) open_flags_ |= segment_flag::clipped;
 
   const double period = settings_.sample_period_s;
-  const auto& quiet = settings_.quiet_windows;
-  for (std::size_t k = 0; k < count; ++k) {
+  for (; k < count; ++k) {
     const std::uint64_t index = first_index + k;
-    const double v = double(codes[k * stride] - calibration_.adc.zero_code) * volts_per_code_;
-    if (bucket_open_ && index >= bucket_end_) flush_series(out);
-    if (!bucket_open_) {
-      bucket_open_ = true;
-      bucket_first_ = index;
-      bucket_end_ = (index / series_samples_ + 1) * series_samples_;
-      bucket_n_ = 0;
-      bucket_min_ = bucket_max_ = v;
-      bucket_sum_ = 0;
-    }
-    ++bucket_n_;
-    bucket_min_ = std::min(bucket_min_, v);
-    bucket_max_ = std::max(bucket_max_, v);
-    bucket_sum_ += v;
-    bucket_last_ = v;
-    last_index_ = index;
-    ++samples_seen_;
-
+    const double v = to_volts(codes[k * stride]);
+    add_to_series(index, v, out);
     if (mode_ == Mode::dead) {
       if (in_zero_window_) {
         const bool first = zero_fit_.seen() == 0;
@@ -126,40 +124,64 @@ void ChannelChain::process(std::uint64_t first_index, std::uint8_t status, const
       }
       mode_ = Mode::live;
     }
-    const bool opening = windows_.empty();
-    const double w = leak_step(index, v, opening);
-    if (opening) {
-      seg_min_v_ = seg_max_v_ = v;
-      clip_event_sent_ = false;
-    }
-    seg_min_v_ = std::min(seg_min_v_, v);
-    seg_max_v_ = std::max(seg_max_v_, v);
-    if (std::fabs(v) >= clip_v_) open_flags_ |= segment_flag::clipped;
-    if ((open_flags_ & segment_flag::clipped) && !clip_event_sent_) {
-      clip_event_sent_ = true;
-      out.events.push_back({"saturation", index,
-                            "output " + std::to_string(v) + " V within the clip level " + std::to_string(clip_v_) +
-                                " V (or the board reported overload): segment delta is a lower bound"});
-    }
-    windows_.add(index, w);
-
-    // Quiet windows marked by the user: the segment goes on, and the samples
-    // also feed a baseline fit.
-    while (quiet_next_ < quiet.size() && quiet[quiet_next_].last_index < index && !in_quiet_) ++quiet_next_;
-    if (in_quiet_ && index > quiet_last_) close_quiet_window(out);
-    if (!in_quiet_ && quiet_next_ < quiet.size() && index >= quiet[quiet_next_].first_index &&
-        index <= quiet[quiet_next_].last_index) {
-      in_quiet_ = true;
-      quiet_fit_.clear();
-      quiet_first_ = index;
-      quiet_last_ = quiet[quiet_next_].last_index;
-    }
-    if (in_quiet_) {
-      quiet_fit_.add(double(index) * period, w);
-      if (index == quiet_last_) close_quiet_window(out);
-    }
+    add_live(index, v, out);
   }
   state_.last_index = std::max(state_.last_index, last_index_);
+}
+
+void ChannelChain::add_to_series(std::uint64_t index, double v, ChainOutput& out) {
+  if (bucket_open_ && index >= bucket_end_) flush_series(out);
+  if (!bucket_open_) {
+    bucket_open_ = true;
+    bucket_first_ = index;
+    bucket_end_ = (index / series_samples_ + 1) * series_samples_;
+    bucket_n_ = 0;
+    bucket_min_ = bucket_max_ = v;
+    bucket_sum_ = 0;
+  }
+  ++bucket_n_;
+  bucket_min_ = std::min(bucket_min_, v);
+  bucket_max_ = std::max(bucket_max_, v);
+  bucket_sum_ += v;
+  bucket_last_ = v;
+  last_index_ = index;
+  ++samples_seen_;
+}
+
+void ChannelChain::add_live(std::uint64_t index, double v, ChainOutput& out) {
+  const bool opening = windows_.empty();
+  const double w = leak_step(index, v, opening);
+  if (opening) {
+    seg_min_v_ = seg_max_v_ = v;
+    clip_event_sent_ = false;
+  }
+  seg_min_v_ = std::min(seg_min_v_, v);
+  seg_max_v_ = std::max(seg_max_v_, v);
+  if (std::fabs(v) >= clip_v_) open_flags_ |= segment_flag::clipped;
+  if ((open_flags_ & segment_flag::clipped) && !clip_event_sent_) {
+    clip_event_sent_ = true;
+    out.events.push_back({"saturation", index,
+                          "output " + std::to_string(v) + " V within the clip level " + std::to_string(clip_v_) +
+                              " V (or the board reported overload): segment delta is a lower bound"});
+  }
+  windows_.add(index, w);
+
+  // Quiet windows marked by the user: the segment goes on, and the samples
+  // also feed a baseline fit.
+  const auto& quiet = settings_.quiet_windows;
+  while (quiet_next_ < quiet.size() && quiet[quiet_next_].last_index < index && !in_quiet_) ++quiet_next_;
+  if (in_quiet_ && index > quiet_last_) close_quiet_window(out);
+  if (!in_quiet_ && quiet_next_ < quiet.size() && index >= quiet[quiet_next_].first_index &&
+      index <= quiet[quiet_next_].last_index) {
+    in_quiet_ = true;
+    quiet_fit_.clear();
+    quiet_first_ = index;
+    quiet_last_ = quiet[quiet_next_].last_index;
+  }
+  if (in_quiet_) {
+    quiet_fit_.add(double(index) * settings_.sample_period_s, w);
+    if (index == quiet_last_) close_quiet_window(out);
+  }
 }
 
 void ChannelChain::adopt_baseline(const BaselineEstimate& e, std::uint64_t first, std::uint64_t last, bool quiet,
@@ -258,9 +280,22 @@ SegmentRecord ChannelChain::account_open_segment(ChainState& s) const {
     const double tm = (double(s.previous_end_index) * period + t1) / 2.0;
     const double slope = s.has_baseline ? s.slope_v_per_s + 2.0 * s.curvature_v_per_s2 * (tm - s.baseline_t0_s) : 0.0;
     const double r1 = s.previous_end_rate_v_per_s, r2 = start.rate_v_per_s;
-    r.gap_before_v = ((r1 + r2) / 2.0 - slope) * gap_s;
     const double spread = std::fabs(r1 - r2) / std::sqrt(12.0);
-    const double fit = std::hypot(s.previous_end_rate_se, start.rate_se_v_per_s) / 2.0;
+    // Where the input changed in the interval next to the gap on one side
+    // only, that side's rate is of a part-interval and the gap held the other
+    // side's level (a spill that began just before a reset, or ended just
+    // after): the mean of the two would miss by a quarter of the difference
+    // or more, with one sign at every such reset.
+    double rate = (r1 + r2) / 2.0;
+    double fit = std::hypot(s.previous_end_rate_se, start.rate_se_v_per_s) / 2.0;
+    if (s.previous_end_changed && !start.changed_at_end) {
+      rate = r2;
+      fit = start.rate_se_v_per_s;
+    } else if (start.changed_at_end && !s.previous_end_changed) {
+      rate = r1;
+      fit = s.previous_end_rate_se;
+    }
+    r.gap_before_v = (rate - slope) * gap_s;
     r.gap_before_u_v = std::hypot(spread, fit) * gap_s;
     r.flags |= segment_flag::gap_estimated;
     if (s.has_baseline) {
@@ -285,6 +320,7 @@ SegmentRecord ChannelChain::account_open_segment(ChainState& s) const {
   s.previous_end_index = r.last_index;
   s.previous_end_rate_v_per_s = end.rate_v_per_s;
   s.previous_end_rate_se = end.rate_se_v_per_s;
+  s.previous_end_changed = end.changed_at_end;
   s.last_index = std::max(s.last_index, r.last_index);
   ++s.segments;
   s.flags |= r.flags;

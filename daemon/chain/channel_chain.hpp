@@ -9,9 +9,11 @@
 // (with R2 across C and leak_correction on, the chain works on
 // W = V + (1/(R2*C))*∫V dt, the trapezoid integral restarted at each segment
 // and zero window, so that dW = -∫Vin dt/(R1*C) exactly: DESIGN.md §4);
-// segmentation (reset-active and zero-relay blocks are dead, and so is a
-// settle time after each; the rest forms segments; outputs within the clip
-// level mark the segment clipped and raise a "saturation" event); baseline
+// segmentation (reset-active and zero-relay blocks are dead but for their
+// first sample, which was converted before the switch closed and ends the
+// open segment, PROTOCOL.md §3.2; a settle time after each is dead too; the
+// rest forms segments; outputs within the clip level mark the segment
+// clipped and raise a "saturation" event); baseline
 // (a linear or quadratic least-squares fit, optionally Huber-robust, on each
 // zero-relay window and each configured quiet window; every new window
 // re-fits, and a segment uses the baseline current when it closes);
@@ -91,6 +93,11 @@ class ChannelChain {
  private:
   enum class Mode { dead, settling, live };
   void enter_dead(bool zero_window);
+  double to_volts(std::int32_t code) const { return double(code - calibration_.adc.zero_code) * volts_per_code_; }
+  // Every sample goes into the open series bucket.
+  void add_to_series(std::uint64_t index, double v, ChainOutput& out);
+  // A sample of the open segment (opens one when none is open).
+  void add_live(std::uint64_t index, double v, ChainOutput& out);
   void close_zero_window(ChainOutput& out);
   void close_quiet_window(ChainOutput& out);
   void adopt_baseline(const BaselineEstimate& e, std::uint64_t first, std::uint64_t last, bool quiet, ChainOutput& out);

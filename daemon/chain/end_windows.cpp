@@ -72,6 +72,12 @@ EndEstimate EndWindows::fit_at(const std::vector<Point>& nearest_first, std::uin
   }
   const LineEstimate line = fit.estimate();
   EndEstimate e;
+  if (total >= 4) {
+    // Steps nearest first; a difference of two steps has variance 6 sigma^2.
+    const double s0 = y[0] - y[1], s1 = y[1] - y[2], s2 = y[2] - y[3];
+    const double limit = kChangeSigmas * std::sqrt(6.0) * sigma;
+    e.changed_at_end = std::fabs(s0 - s1) > limit && std::fabs(s0 - s2) > limit && std::fabs(s1 - s2) <= limit;
+  }
   e.value_v = line.at(0.0);
   e.rate_v_per_s = line.slope;
   e.points = n;

@@ -15,7 +15,9 @@
 // test; the noise comes from the window's second differences, which a steady
 // ramp does not touch and one change of input barely moves), the half farther
 // from the end is dropped, and again, down to the last 2 samples (whose line
-// is the end sample itself and the last step's rate).
+// is the end sample itself and the last step's rate). A change inside the
+// very last interval cannot be told from a steady line by the fit; the three
+// last steps can tell it, and the estimate says so (changed_at_end).
 #include <cstddef>
 #include <cstdint>
 #include <vector>
@@ -30,6 +32,11 @@ struct EndEstimate {
   double rate_v_per_s = 0.0;
   double rate_se_v_per_s = 0.0;
   std::size_t points = 0;  // samples the line was fitted to (fewer than the window after a change of input)
+  // The input changed within the sample interval next to the end (the step
+  // there disagrees with the two steps beyond it, which agree): the rate is
+  // then of a partial interval and says nothing of the level on the far side
+  // of the end (a dead time's estimate should rely on the other side's rate).
+  bool changed_at_end = false;
 };
 
 class EndWindows {
@@ -51,6 +58,7 @@ class EndWindows {
     double volts;
   };
   static constexpr double kLackOfFitSigmas = 3.0;
+  static constexpr double kChangeSigmas = 4.0;
   EndEstimate fit_at(const std::vector<Point>& nearest_first, std::uint64_t at, double period_s) const;
   std::size_t window_;
   double noise_floor_v_;

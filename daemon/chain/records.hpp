@@ -100,6 +100,7 @@ struct ChainState {
   std::uint64_t previous_end_index = 0;
   double previous_end_rate_v_per_s = 0.0;
   double previous_end_rate_se = 0.0;
+  bool previous_end_changed = false;  // the input changed in the previous segment's last interval
   std::uint32_t segments = 0;
   std::uint32_t flags = 0;  // union of segment flags so far
   // For contrast only: segment deltas summed with no drift removal and no

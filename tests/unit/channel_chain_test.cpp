@@ -42,9 +42,13 @@ struct SyntheticBoard {
     chain.process(index, status, codes.data(), codes.size(), 1, out);
     index += samples;
   }
+  // A reset of `samples` samples: the first is converted as the switch
+  // closes (PROTOCOL.md §3.2) and shows the undischarged output, the rest 0.
   void reset(std::uint64_t samples) {
-    v = 0.0;
-    run(samples, status_bit::reset_active, 0.0);
+    std::vector<std::int32_t> codes(samples, code(0.0));
+    codes[0] = code(v);
+    chain.process(index, status_bit::reset_active, codes.data(), codes.size(), 1, out);
+    index += samples;
     v = pedestal_v;
   }
 };
@@ -159,4 +163,62 @@ TEST_CASE("channel_chain: a quiet window added while running feeds the baseline"
   const TotalSnapshot t = b.chain.snapshot();
   CHECK((t.flags & segment_flag::no_baseline) == 0);
   CHECK_THAT(t.total, WithinRel(true_q, 1e-4));
+}
+
+TEST_CASE("channel_chain: the first sample of a reset or zero-relay block ends the open segment",
+          "[chain][segments]") {
+  // PROTOCOL.md §3.2: the switch closes just after that sample is converted.
+  SyntheticBoard b;
+  const double rate = b.input_v_per_s + b.drift_v_per_s;
+  b.run(1000, 0, rate);
+  const std::uint64_t reset_at = b.index;
+  const double undischarged_v = b.v;
+  b.reset(3);
+  b.run(1000, 0, rate);
+  const std::uint64_t zero_at = b.index;
+  b.run(500, status_bit::zero_relay, b.drift_v_per_s);
+  b.run(1000, 0, rate);
+  b.chain.finish(b.out);
+
+  REQUIRE(b.out.segments.size() == 3);
+  CHECK(b.out.segments[0].last_index == reset_at);
+  CHECK_THAT(b.out.segments[0].end_v, WithinAbs(undischarged_v, 1e-5));
+  // The dead time runs from that sample to the first one integrated after the
+  // reset: the two further reset samples and the 2 settle samples.
+  CHECK(b.out.segments[1].first_index == reset_at + 3 + 2);
+  CHECK(b.out.segments[1].last_index == zero_at);
+  // The zero window's fit starts after the sample that closed the segment.
+  REQUIRE(b.out.baselines.size() == 1);
+  CHECK(b.out.baselines[0].first_index == zero_at + 1);
+  CHECK(b.out.baselines[0].last_index == zero_at + 499);
+}
+
+TEST_CASE("channel_chain: a dead time next to a change of input takes the level of the far side",
+          "[chain][segments][gap]") {
+  // The gap here is 5 intervals: the edge sample, 2 more reset samples, 2 settle samples.
+  const double gap_s = 5e-3;
+  SECTION("the input starts inside the last interval before the reset") {
+    SyntheticBoard b;
+    b.run(1000, 0, b.drift_v_per_s);              // input off
+    b.v += 0.7 * b.input_v_per_s * b.dt;          // on from 30 % into the last interval
+    b.reset(3);
+    b.run(1000, 0, b.input_v_per_s + b.drift_v_per_s);
+    b.chain.finish(b.out);
+    REQUIRE(b.out.segments.size() == 2);
+    // No baseline: the gap estimate is the plain rate times the gap. The mean
+    // of the two rates would be 15 % of the input short.
+    CHECK_THAT(b.out.segments[1].gap_before_v, WithinRel((b.input_v_per_s + b.drift_v_per_s) * gap_s, 1e-3));
+  }
+  SECTION("the input stops inside the first interval after the reset") {
+    SyntheticBoard b;
+    b.run(1000, 0, b.input_v_per_s + b.drift_v_per_s);
+    b.reset(3);
+    b.run(2, 0, 0.0);  // the settle samples (not integrated)
+    // The input flows for 30 % of the first live interval, then stops.
+    b.run(1, 0, 0.3 * b.input_v_per_s + b.drift_v_per_s);
+    b.run(1000, 0, b.drift_v_per_s);
+    b.chain.finish(b.out);
+    REQUIRE(b.out.segments.size() == 2);
+    CHECK_THAT(b.out.segments[1].gap_before_v, WithinRel((b.input_v_per_s + b.drift_v_per_s) * gap_s, 1e-3));
+  }
 }
