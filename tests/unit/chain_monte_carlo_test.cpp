@@ -312,25 +312,27 @@ TEST_CASE("chain_monte_carlo: 200 simulated 8-hour runs, median |error| of the t
   CHECK(f.median_abs_rel_uncorrected > 10.0 * f.median_abs_rel);
 }
 
-// Known open (issue 4): over all 200 runs the stated k=2 uncertainty covers
-// the truth in 73 %, not 93-97 %. ACCRUE_MC_VERBOSE splits each run's error
-// into segment deltas and dead-time estimates: where the board resets itself
-// at a threshold, the reset is correlated with the input being on and the
-// dead-time estimate from the mean of the rates either side reads low
-// (median error/u -2.3); the segment-end uncertainty is also short when a
-// spill edge sits near a segment end. The figure is printed above. What is
-// asserted is the part of the model that holds today: runs whose resets the
-// host schedules at fixed intervals (their dead time is not correlated with
-// the input) must be covered in 93-97 % of cases (binomial spread at 54
-// runs is about 3 %, so the band is tight; the seeds are fixed).
-TEST_CASE("chain_monte_carlo: with host-interval resets the k=2 uncertainty covers the truth in 93-97 % of the runs",
-          "[chain][monte_carlo]") {
+// The stated k=2 uncertainty must cover the truth in 93-97 % of the 200 runs
+// (binomial spread at 200 runs is about 1.6 %; the seeds are fixed, so the
+// figure is reproducible). Two rules of the chain carry this: a reset-active
+// block's first sample ends the segment (PROTOCOL.md §3.2), so a threshold
+// reset's dead time no longer includes the interval whose input pushed the
+// output over; and a dead time next to a change of input takes the far
+// side's rate (EndEstimate::changed_at_end). The misses left are mostly
+// inputs whose off-time is shorter than one sample period (spill_on_s near
+// spill_period_s), which no sampled chain can resolve. Each reset mode's
+// share is printed above; none is asserted alone (54-75 runs each are too
+// few for a band this narrow).
+TEST_CASE("chain_monte_carlo: the k=2 uncertainty covers the truth in 93-97 % of the runs", "[chain][monte_carlo]") {
   const Figures& f = figures();
   if (f.runs != 200) return;  // the band is for 200 runs
-  const int interval = int(ResetMode::host_interval);
-  REQUIRE(f.mode_runs[interval] > 40);
-  const double coverage = double(f.mode_covered[interval]) / double(f.mode_runs[interval]);
-  INFO("host-interval coverage " << coverage << " of " << f.mode_runs[interval] << " runs; all runs " << f.coverage);
-  CHECK(coverage >= 0.93);
-  CHECK(coverage <= 0.97);
+  INFO("coverage " << f.coverage << " of " << f.runs << " runs");
+  CHECK(f.coverage >= 0.93);
+  CHECK(f.coverage <= 0.97);
+  // Every reset mode is in the sample and none is far off.
+  for (int m = 0; m < 3; ++m) {
+    INFO("reset mode " << m << ": " << f.mode_covered[m] << " of " << f.mode_runs[m]);
+    REQUIRE(f.mode_runs[m] > 40);
+    CHECK(double(f.mode_covered[m]) / double(f.mode_runs[m]) >= 0.85);
+  }
 }
