@@ -155,6 +155,26 @@ bool write_all(int fd, const std::uint8_t* data, std::size_t n, CommandReader& r
   return true;
 }
 
+// Waits until `due`, reading the host's commands meanwhile (their replies go
+// out with the next chunk); wakes at least every 50 ms for a stop request.
+bool wait_listening(int fd, std::chrono::steady_clock::time_point due, CommandReader& reader,
+                    std::vector<std::uint8_t>& replies) {
+  std::uint8_t in[4096];
+  for (auto now = std::chrono::steady_clock::now(); !g_stop_requested && now < due;
+       now = std::chrono::steady_clock::now()) {
+    const auto wait_ms = std::chrono::duration_cast<std::chrono::milliseconds>(due - now).count();
+    pollfd p{fd, POLLIN, 0};
+    const int ready = ::poll(&p, 1, int(std::clamp<long long>(wait_ms, 1, 50)));
+    if (ready < 0 && errno != EINTR) return false;
+    if (ready <= 0) continue;
+    const ssize_t r = (p.revents & POLLIN) ? ::read(fd, in, sizeof in) : 0;
+    if (r > 0) reader.on_bytes(std::span<const std::uint8_t>(in, std::size_t(r)), replies);
+    // No reader on the terminal (hang-up, EIO): nothing to take; just keep time.
+    else std::this_thread::sleep_for(std::chrono::milliseconds(std::clamp<long long>(wait_ms, 1, 50)));
+  }
+  return true;
+}
+
 // Sleeps `s` seconds of wall time, waking early on a stop request.
 void nap(double s) {
   const auto until = std::chrono::steady_clock::now() + std::chrono::duration_cast<std::chrono::steady_clock::duration>(
@@ -274,7 +294,13 @@ int main(int argc, char** argv) {
     std::fprintf(stderr, "accrue-sim: warning: cable pulls without --link: a reader cannot find the new terminal\n");
   std::vector<std::uint8_t> out, replies;
   const auto wall_start = std::chrono::steady_clock::now();
-  const std::uint64_t chunk = std::max<std::uint64_t>(scenario.samples_per_block, 8192);
+  // Unpaced, large chunks keep the writes few. Paced, a chunk is at most
+  // 20 ms of wall time: a command the host sends takes effect at the next
+  // chunk, as a real board would act on it within a block or so.
+  const std::uint64_t chunk =
+      speed > 0 ? std::max<std::uint64_t>(scenario.samples_per_block,
+                                          std::uint64_t(0.02 * speed / scenario.sample_period_s))
+                : std::max<std::uint64_t>(scenario.samples_per_block, 8192);
   bool ok = true;
   while (ok) {
     // Stop producing exactly where the next cable pull or stall is due.
@@ -331,10 +357,7 @@ int main(int argc, char** argv) {
       const double board_s = board.true_time_s();
       const auto due = wall_start + std::chrono::duration_cast<std::chrono::steady_clock::duration>(
                                         std::chrono::duration<double>(board_s / speed));
-      // Short naps so a stop request is honoured within 50 ms even at slow speeds.
-      while (!g_stop_requested && std::chrono::steady_clock::now() < due)
-        std::this_thread::sleep_for(std::min<std::chrono::steady_clock::duration>(
-            due - std::chrono::steady_clock::now(), std::chrono::milliseconds(50)));
+      ok = wait_listening(pty.master_fd(), due, reader, replies);
     }
   }
   if (!replies.empty()) write_all(pty.master_fd(), replies.data(), replies.size(), reader, replies);
