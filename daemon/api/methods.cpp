@@ -442,6 +442,7 @@ Reply Methods::window(const json& params, const json& id) {
                        {"bucket_samples", page.bucket_samples},
                        {"from_index", page.lo},
                        {"to_index", page.hi},
+                       {"total_interpolated", page.from_raw},
                        {"continuation", cont}};
   // The points go in as text (see window_text.hpp); the rest is small. Keys
   // keep json::dump()'s sorted order: "points" falls between "from_index" and

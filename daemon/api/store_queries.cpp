@@ -4,6 +4,7 @@
 #include <climits>
 #include <functional>
 
+#include "daemon/api/store_sql.hpp"
 #include "storage/rollup.hpp"
 
 namespace accrue::daemon::api {
@@ -12,15 +13,6 @@ using storage::Statement;
 using storage::Status;
 
 namespace {
-std::int64_t clamp64(std::uint64_t v) { return std::int64_t(std::min<std::uint64_t>(v, INT64_MAX)); }
-
-// The derivation a query reads: ?9 when bound, else the run's (?1) newest usable one.
-#define ACCRUE_READ_DERIVATION "COALESCE(?9, (SELECT MAX(derivation) FROM derivation WHERE run_id = ?1 AND state IN ('recorded', 'complete')))"
-void bind_derivation(Statement& st, std::optional<int> derivation) {
-  if (derivation) st.bind(9, std::int64_t(*derivation));
-  else st.bind_null(9);
-}
-
 Status each_row(Statement& st, const std::function<void(const Statement&)>& f) {
   for (bool row = true;;) {
     if (Status s = st.step(&row); !s.ok()) return s;
@@ -116,6 +108,25 @@ Status StoreQueries::window_page(std::int64_t run_id, int channel, std::uint64_t
   out.lo = *lo;
   out.hi = *hi;
   stride = std::max<std::uint64_t>(1, stride);
+  // Finer than the series points: from the raw blocks while they are kept.
+  // A continuation's bucket size says which the first page chose.
+  if (stride > 1 && (bucket_samples == 0 || bucket_samples < stride)) {
+    std::optional<std::pair<std::uint64_t, std::uint64_t>> extent;
+    if (Status s = raw_extent(run_id, from_index, to_index, extent); !s.ok()) return s;
+    if (extent) {
+      const std::uint64_t B = bucket_samples > 0 ? bucket_samples : bucket_for(extent->first, extent->second, max_points, 1);
+      if (B < stride) {
+        out.lo = extent->first;
+        out.hi = extent->second;
+        out.bucket_samples = B;
+        out.from_raw = true;
+        const std::uint64_t first_bucket = std::max(out.lo, start.value_or(out.lo)) / B;
+        const std::uint64_t last_bucket = std::min(out.hi / B, first_bucket + page_points - 1);
+        if (last_bucket < out.hi / B) out.next_start = (last_bucket + 1) * B;
+        return raw_page(run_id, channel, stride, first_bucket, last_bucket, out, derivation);
+      }
+    }
+  }
   out.bucket_samples = bucket_samples > 0 ? bucket_samples : bucket_for(out.lo, out.hi, max_points, stride);
   const std::uint64_t B = out.bucket_samples;
   const std::uint64_t first_bucket = std::max(out.lo, start.value_or(out.lo)) / B;

@@ -31,6 +31,9 @@ struct WindowPage {
   std::vector<Bucket> buckets;
   std::optional<std::uint64_t> next_start;  // where the next page starts, if any
   bool empty = true;
+  // Buckets finer than the series points, made from the raw blocks: the volts
+  // are exact, the totals interpolated between the series points' totals.
+  bool from_raw = false;
 };
 
 struct SegmentRow {
@@ -73,7 +76,10 @@ class StoreQueries {
   // Buckets of `bucket_samples` (0: chosen so that the whole window makes
   // about max_points buckets) starting at `start` (or the window's first
   // point), at most `page_points` of them. The first page fixes lo, hi and
-  // bucket_samples; a continuation passes them back unchanged.
+  // bucket_samples; a continuation passes them back unchanged. Where
+  // max_points asks for buckets finer than the series points and the raw
+  // blocks are still kept, the buckets come from the raw samples (from_raw;
+  // lo and hi are then the samples' extent in the window).
   // `derivation` (here and in segments()): the run's derivation to read;
   // nullopt reads the newest usable one (storage::Reader::resolve_derivation).
   storage::Status window_page(std::int64_t run_id, int channel, std::uint64_t from_index, std::uint64_t to_index,
@@ -89,6 +95,12 @@ class StoreQueries {
 
  private:
   explicit StoreQueries(std::unique_ptr<storage::Database> db) : db_(std::move(db)) {}
+  // The samples' extent in [from, to] by raw-block index seeks; nullopt when no raw block holds any.
+  storage::Status raw_extent(std::int64_t run_id, std::uint64_t from_index, std::uint64_t to_index,
+                             std::optional<std::pair<std::uint64_t, std::uint64_t>>& out);
+  // The page [first_bucket, last_bucket] of out.bucket_samples from the raw blocks (store_queries_raw.cpp).
+  storage::Status raw_page(std::int64_t run_id, int channel, std::uint64_t stride, std::uint64_t first_bucket,
+                           std::uint64_t last_bucket, WindowPage& out, std::optional<int> derivation);
   std::unique_ptr<storage::Database> db_;
 };
 
