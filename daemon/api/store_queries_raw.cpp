@@ -21,9 +21,14 @@ using storage::Status;
 
 namespace {
 
-// The block holding `index` or, if none does, the first block after it, by one or two index seeks.
-Status block_at_or_after(storage::Database& db, std::int64_t run_id, std::uint64_t index, std::uint64_t to_index,
-                         std::optional<std::uint64_t>& first_sample) {
+struct BlockSpan {
+  std::uint64_t first_index = 0, samples = 0;
+};
+
+// The last raw block starting at or before `index` (one index seek).
+Status last_block_at_or_before(storage::Database& db, std::int64_t run_id, std::uint64_t index,
+                               std::optional<BlockSpan>& out) {
+  out.reset();
   Statement st;
   if (Status s = db.prepare("SELECT first_index, samples FROM raw_block WHERE run_id = ? AND first_index <= ?"
                             " ORDER BY first_index DESC LIMIT 1",
@@ -33,7 +38,16 @@ Status block_at_or_after(storage::Database& db, std::int64_t run_id, std::uint64
   st.bind(1, run_id).bind(2, clamp64(index));
   bool row = false;
   if (Status s = st.step(&row); !s.ok()) return s;
-  if (row && std::uint64_t(st.column_int(0)) + std::uint64_t(st.column_int(1)) > index) {
+  if (row) out = BlockSpan{std::uint64_t(st.column_int(0)), std::uint64_t(std::max<std::int64_t>(1, st.column_int(1)))};
+  return Status::success();
+}
+
+// `index` when a block holds it, else the first sample of the first block after it (up to to_index).
+Status block_at_or_after(storage::Database& db, std::int64_t run_id, std::uint64_t index, std::uint64_t to_index,
+                         std::optional<std::uint64_t>& first_sample) {
+  std::optional<BlockSpan> at;
+  if (Status s = last_block_at_or_before(db, run_id, index, at); !s.ok()) return s;
+  if (at && at->first_index + at->samples > index) {
     first_sample = index;
     return Status::success();
   }
@@ -44,6 +58,7 @@ Status block_at_or_after(storage::Database& db, std::int64_t run_id, std::uint64
       !s.ok())
     return s;
   next.bind(1, run_id).bind(2, clamp64(index)).bind(3, clamp64(to_index));
+  bool row = false;
   if (Status s = next.step(&row); !s.ok()) return s;
   if (row) first_sample = std::uint64_t(next.column_int(0));
   return Status::success();
@@ -75,17 +90,10 @@ Status StoreQueries::raw_extent(std::int64_t run_id, std::uint64_t from_index, s
   std::optional<std::uint64_t> lo;
   if (Status s = block_at_or_after(*db_, run_id, from_index, to_index, lo); !s.ok()) return s;
   if (!lo) return Status::success();
-  Statement st;
-  if (Status s = db_->prepare("SELECT first_index, samples FROM raw_block WHERE run_id = ? AND first_index <= ?"
-                              " ORDER BY first_index DESC LIMIT 1",
-                              st);
-      !s.ok())
-    return s;
-  st.bind(1, run_id).bind(2, clamp64(to_index));
-  bool row = false;
-  if (Status s = st.step(&row); !s.ok()) return s;
-  if (!row) return Status::success();
-  const std::uint64_t last = std::uint64_t(st.column_int(0)) + std::max<std::int64_t>(1, st.column_int(1)) - 1;
+  std::optional<BlockSpan> last_block;
+  if (Status s = last_block_at_or_before(*db_, run_id, to_index, last_block); !s.ok()) return s;
+  if (!last_block) return Status::success();
+  const std::uint64_t last = last_block->first_index + last_block->samples - 1;
   const std::uint64_t hi = std::min(to_index, last);
   if (hi >= *lo) out = std::make_pair(*lo, hi);
   return Status::success();
@@ -140,26 +148,16 @@ Status StoreQueries::raw_page(std::int64_t run_id, int channel, std::uint64_t st
   }
 
   // The blocks from the one holding `begin` to `end`, decoded one at a time.
-  std::optional<std::uint64_t> from_block;
-  {
-    Statement st;
-    if (Status s = db_->prepare("SELECT first_index FROM raw_block WHERE run_id = ? AND first_index <= ?"
-                                " ORDER BY first_index DESC LIMIT 1",
-                                st);
-        !s.ok())
-      return s;
-    st.bind(1, run_id).bind(2, clamp64(begin));
-    bool row = false;
-    if (Status s = st.step(&row); !s.ok()) return s;
-    from_block = row ? std::uint64_t(st.column_int(0)) : begin;
-  }
+  std::optional<BlockSpan> at_begin;
+  if (Status s = last_block_at_or_before(*db_, run_id, begin, at_begin); !s.ok()) return s;
+  const std::uint64_t from_block = at_begin ? at_begin->first_index : begin;
   Statement st;
   if (Status s = db_->prepare("SELECT first_index, channel_count, samples, encoding, data FROM raw_block"
                               " WHERE run_id = ? AND first_index BETWEEN ? AND ? ORDER BY first_index",
                               st);
       !s.ok())
     return s;
-  st.bind(1, run_id).bind(2, clamp64(*from_block)).bind(3, clamp64(end));
+  st.bind(1, run_id).bind(2, clamp64(from_block)).bind(3, clamp64(end));
   std::vector<std::int32_t> codes;
   out.buckets.reserve(std::size_t(std::min<std::uint64_t>(last_bucket - first_bucket + 1, 1u << 16)));
   double sum_v = 0.0;
