@@ -55,6 +55,9 @@ ReloadPlan plan_reload(const DaemonConfig& running, const DaemonConfig& fresh, s
   restart(fresh.socket_group != running.socket_group, "socket_group");
   restart(fresh.api_idle_timeout_s != running.api_idle_timeout_s, "api_idle_timeout_s");
   restart(fresh.api_line_timeout_s != running.api_line_timeout_s, "api_line_timeout_s");
+  // The server is built with these at start (its client table and each client's queue).
+  restart(fresh.api_max_clients != running.api_max_clients, "api_max_clients");
+  restart(fresh.api_client_buffer_bytes != running.api_client_buffer_bytes, "api_client_buffer_bytes");
   restart(fresh.tcp.has_value() != running.tcp.has_value() ||
               (fresh.tcp && (fresh.tcp->address != running.tcp->address || fresh.tcp->port != running.tcp->port ||
                              fresh.tcp->token_file != running.tcp->token_file ||

@@ -46,3 +46,14 @@ TEST_CASE("reload: device, storage and socket changes wait for a restart") {
   CHECK(plan.next.device == "/dev/ttyUSB0");
   CHECK(plan.next.database == running.database);
 }
+
+TEST_CASE("reload: the API server's client limit and client buffer wait for a restart") {
+  DaemonConfig running;
+  DaemonConfig fresh = running;
+  fresh.api_max_clients = running.api_max_clients + 1;
+  fresh.api_client_buffer_bytes = running.api_client_buffer_bytes * 2;
+  const ReloadPlan plan = plan_reload(running, fresh, {});
+  CHECK(plan.applied.empty());
+  CHECK(plan.need_restart == std::vector<std::string>{"api_max_clients", "api_client_buffer_bytes"});
+  CHECK(plan.next.api_max_clients == running.api_max_clients);
+}
