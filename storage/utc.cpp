@@ -22,12 +22,13 @@ std::string rfc3339_utc(double unix_seconds) {
   std::snprintf(buf, sizeof buf, "%04d-%02u-%02uT%02ld:%02ld:%02lldZ", int(ymd.year()), unsigned(ymd.month()),
                 unsigned(ymd.day()), long(hms.hours().count()), long(hms.minutes().count()),
                 static_cast<long long>(hms.seconds().count()));
+  // Always three decimals: the store compares these as text (events' host_utc
+  // against a query's bounds), and text order is time order only at one width
+  // ("10:00:00Z" would sort after "10:00:00.250Z").
   std::string out(buf);
-  if (millis) {
-    char frac[16];
-    std::snprintf(frac, sizeof frac, ".%03d", millis);
-    out.insert(out.size() - 1, frac);
-  }
+  char frac[16];
+  std::snprintf(frac, sizeof frac, ".%03d", millis);
+  out.insert(out.size() - 1, frac);
   return out;
 }
 
