@@ -332,10 +332,9 @@ int main(int argc, char** argv) {
     }
   }
   api::Hub hub;
-  // API control commands use their own request-id range (from 0x8000) until they
-  // go through BoardCommands' acks and retries like identify does.
-  std::uint16_t api_request_id = 0x8000;
-  api::LinkControl control(link, ingest, api_request_id);
+  // API board commands go through the reset driver, so BoardCommands' acks and
+  // retries, the driver's counters and its events cover them like the schedule's.
+  api::LinkControl control(link, ingest, resets);
   // A calibration set over the API joins the running config as a reload would.
   control.set_config_sink([&](const DaemonConfig& next) {
     config.channels = next.channels;

@@ -19,7 +19,9 @@ const char* to_text(CommandOutcome o) {
   return "unknown";
 }
 
-const char* to_text(protocol::AckStatus s) {
+}  // namespace
+
+const char* to_string(protocol::AckStatus s) {
   switch (s) {
     case protocol::AckStatus::ok: return "ok";
     case protocol::AckStatus::unknown_command: return "unknown_command";
@@ -29,7 +31,17 @@ const char* to_text(protocol::AckStatus s) {
   return "unknown";
 }
 
-}  // namespace
+const char* to_string(OperatorOutcome o) {
+  switch (o) {
+    case OperatorOutcome::acknowledged: return "acknowledged";
+    case OperatorOutcome::refused_by_board: return "refused_by_board";
+    case OperatorOutcome::timed_out: return "timed_out";
+    case OperatorOutcome::link_lost: return "link_lost";
+    case OperatorOutcome::no_capability: return "no_capability";
+    case OperatorOutcome::not_sent: return "not_sent";
+  }
+  return "unknown";
+}
 
 chain::ResetScheduleSettings scheduler_settings(const ResetSchedule& schedule) {
   chain::ResetScheduleSettings s;
@@ -99,46 +111,95 @@ void ResetDriver::observe(const BlockObservation& b) {
   for (double l : b.level_fraction) level = std::max(level, l);
   actions_.clear();
   scheduler_->observe(b.board_time_s, b.utc, level, b.status, actions_);
-  for (const auto& a : actions_) act(a, b);
+  for (const auto& a : actions_) act(a);
 }
 
-void ResetDriver::act(const chain::ScheduleAction& a, const BlockObservation& b) {
-  const bool reset = a.decision == chain::ScheduleDecision::reset_now;
-  const std::uint8_t need = reset ? protocol::capability_bit::reset_switch : protocol::capability_bit::zero_relay;
-  if (!(b.capabilities & need)) {
+void ResetDriver::act(const chain::ScheduleAction& a) {
+  const OperatorRequest what = a.decision == chain::ScheduleDecision::reset_now       ? OperatorRequest::reset_now
+                               : a.decision == chain::ScheduleDecision::zero_relay_on ? OperatorRequest::zero_relay_on
+                                                                                      : OperatorRequest::zero_relay_off;
+  send(what, a.reason, false, {});
+}
+
+void ResetDriver::command(OperatorRequest what, Reported done) {
+  if (!have_block_) {
+    // The capabilities come with the blocks (the board's identity); without one
+    // we cannot tell whether the board has the switch or relay at all.
     ++counters_.not_sent;
+    ++counters_.operator_not_sent;
+    if (done) done(OperatorResult{OperatorOutcome::not_sent, 0, protocol::AckStatus::ok, 0,
+                                  "no sample block seen yet: the board's capabilities are unknown"});
+    return;
+  }
+  send(what, "command", true, std::move(done));
+}
+
+void ResetDriver::send(OperatorRequest what, const std::string& reason, bool from_operator, Reported done) {
+  const bool reset = what == OperatorRequest::reset_now;
+  const std::uint8_t need = reset ? protocol::capability_bit::reset_switch : protocol::capability_bit::zero_relay;
+  const std::uint64_t index = last_.last_index;
+  const char* part = reset ? "reset switch" : "zero relay";
+  if (!(last_.capabilities & need)) {
+    ++counters_.not_sent;
+    if (from_operator) ++counters_.operator_not_sent;
+    // The schedule's decisions repeat (retries, every interval): one event per
+    // run says why. An operator's request is rare and each one is answered.
     bool& told = reset ? told_no_switch_ : told_no_relay_;
-    if (!told) {
-      told = true;
+    if (from_operator || !told) {
+      if (!from_operator) told = true;
       event_(reset ? "reset_not_commanded" : "zero_relay_not_commanded",
-             std::string("reason=") + a.reason + "; the board has no " + (reset ? "reset switch" : "zero relay") +
-                 " (identity capabilities); the schedule's decisions are counted, not sent",
-             b.last_index);
+             std::string("reason=") + reason + "; the board has no " + part + " (identity capabilities); " +
+                 (from_operator ? "the operator's command is refused" : "the schedule's decisions are counted, not sent"),
+             index);
     }
+    if (done) done(OperatorResult{OperatorOutcome::no_capability, 0, protocol::AckStatus::ok, 0,
+                                  std::string("the board has no ") + part});
     return;
   }
   const protocol::CommandOp op = reset ? protocol::CommandOp::reset_now : protocol::CommandOp::zero_relay;
-  const std::uint32_t argument = a.decision == chain::ScheduleDecision::zero_relay_on ? 1u : 0u;
-  const std::string what = reset ? "reset" : (argument ? "zero_relay_on" : "zero_relay_off");
-  const std::string reason = a.reason;
-  const std::uint64_t index = b.last_index;
-  const std::uint16_t id = submit_(op, argument, [this, reset, what, reason, index](const CommandResult& r) {
+  const std::uint32_t argument = what == OperatorRequest::zero_relay_on ? 1u : 0u;
+  const std::string name = reset ? "reset" : (argument ? "zero_relay_on" : "zero_relay_off");
+  const char* failed_kind = reset ? "reset_command_failed" : "zero_relay_command_failed";
+  auto completed = [this, reset, from_operator, name, reason, index, failed_kind,
+                    done](const CommandResult& r) {
     const bool ok = r.outcome == CommandOutcome::acked && r.status == protocol::AckStatus::ok;
     if (reset) (ok ? counters_.acked : counters_.failed) += 1;
     else if (!ok) ++counters_.zero_failed;
-    if (ok) return;
-    // Refused: a reset seen next is not this one. Unanswered: the board may
-    // still have done it (an ack lost), so the reason stays until one is seen.
-    if (reset && r.outcome == CommandOutcome::acked) awaiting_reason_.reset();
-    std::string detail = what + " reason=" + reason + " request_id=" + std::to_string(r.request_id) +
-                         " outcome=" + to_text(r.outcome) + " attempts=" + std::to_string(r.attempts);
-    if (r.outcome == CommandOutcome::acked) detail += std::string(" board_status=") + to_text(r.status);
-    event_(reset ? "reset_command_failed" : "zero_relay_command_failed", detail, index);
-  });
+    if (from_operator) (ok ? counters_.operator_acked : counters_.operator_failed) += 1;
+    OperatorResult out{OperatorOutcome::acknowledged, r.request_id, r.status, r.attempts, {}};
+    if (!ok) {
+      // Refused: a reset seen next is not this one. Unanswered: the board may
+      // still have done it (an ack lost), so the reason stays until one is seen.
+      if (reset && r.outcome == CommandOutcome::acked) awaiting_reason_.reset();
+      std::string detail = name + " reason=" + reason + " request_id=" + std::to_string(r.request_id) +
+                           " outcome=" + to_text(r.outcome) + " attempts=" + std::to_string(r.attempts);
+      if (r.outcome == CommandOutcome::acked) detail += std::string(" board_status=") + to_string(r.status);
+      event_(failed_kind, detail, index);
+      const std::string id = "request " + std::to_string(r.request_id);
+      switch (r.outcome) {
+        case CommandOutcome::acked:
+          out.outcome = OperatorOutcome::refused_by_board;
+          out.why = "the board refused " + id + ": " + to_string(r.status);
+          break;
+        case CommandOutcome::timed_out:
+          out.outcome = OperatorOutcome::timed_out;
+          out.why = "the board did not acknowledge " + id + " after " + std::to_string(r.attempts) +
+                    " sends (it may still have acted)";
+          break;
+        case CommandOutcome::link_lost:
+          out.outcome = OperatorOutcome::link_lost;
+          out.why = "the link went down before the board acknowledged " + id + " (it may still have acted)";
+          break;
+      }
+    }
+    if (done) done(out);
+  };
+  const std::uint16_t id = submit_(op, argument, std::move(completed));
   if (id == 0) {
     ++counters_.not_sent;
-    event_(reset ? "reset_command_failed" : "zero_relay_command_failed",
-           what + " reason=" + reason + " outcome=not_sent (too many commands pending)", index);
+    if (from_operator) ++counters_.operator_not_sent;
+    event_(failed_kind, name + " reason=" + reason + " outcome=not_sent (too many commands pending)", index);
+    if (done) done(OperatorResult{OperatorOutcome::not_sent, 0, protocol::AckStatus::ok, 0, "too many commands pending"});
     return;
   }
   if (reset) {
@@ -147,8 +208,9 @@ void ResetDriver::act(const chain::ScheduleAction& a, const BlockObservation& b)
   } else {
     ++counters_.zero_commands;
   }
-  event_(reset ? "reset_commanded" : "zero_relay_commanded",
-         what + " reason=" + reason + " request_id=" + std::to_string(id), index);
+  if (from_operator) ++counters_.operator_commands;
+  event_(reset ? "reset_commanded" : "zero_relay_commanded", name + " reason=" + reason + " request_id=" + std::to_string(id),
+         index);
 }
 
 std::optional<double> ResetDriver::next_calendar_utc(double utc) const {
@@ -221,7 +283,11 @@ nlohmann::json ResetDriver::status() const {
             {"resets_seen", k.resets_seen},
             {"board_initiated", k.board_initiated},
             {"zero_commands", k.zero_commands},
-            {"zero_failed", k.zero_failed}};
+            {"zero_failed", k.zero_failed},
+            {"operator_commands", k.operator_commands},
+            {"operator_acked", k.operator_acked},
+            {"operator_failed", k.operator_failed},
+            {"operator_not_sent", k.operator_not_sent}};
   // Per channel: the board's one switch serves them all, so the times and
   // counts are the board's; the levels are the channel's own.
   json channels = json::array();

@@ -9,12 +9,21 @@
 // Resets the board makes on its own are followed as before: the scheduler
 // sees them in the status bits and counts from them.
 //
+// command() is the operator's way in (the API's reset_now, zero_start,
+// zero_stop): the same send path as the schedule's decisions (one private
+// send()), the same counters plus operator_* ones, the same events (reason
+// "command"), and a board without the capability is refused, each time with an
+// event. Its `done` is called exactly once with the outcome: at once when the
+// command cannot be sent, else from the command's completion (acked, refused
+// by the board, timed out, link lost).
+//
 // It records an event for every command it sends and every command that fails
 // (timed out, link lost, or refused by the board), through `event`. status()
 // gives the policy, the next planned reset, the last reset seen and why, and
 // the counters, also per channel. Borrows nothing; the callbacks are the
-// owner's and are called from observe() and from the command completions.
-// Asio thread only.
+// owner's and are called from observe(), command() and from the command
+// completions. The driver must outlive the commands it submitted (their
+// completions call it). Asio thread only.
 #include <cstdint>
 #include <functional>
 #include <optional>
@@ -45,6 +54,33 @@ struct ResetDriverCounters {
   std::uint64_t board_initiated = 0;  // ... of those, with no command of ours waiting
   std::uint64_t zero_commands = 0;    // zero relay on/off commands sent
   std::uint64_t zero_failed = 0;
+  // Operator commands (command()), also counted above with the schedule's.
+  std::uint64_t operator_commands = 0;  // sent to the board
+  std::uint64_t operator_acked = 0;     // ... acknowledged with status ok
+  std::uint64_t operator_failed = 0;    // ... timed out, link lost, or refused by the board
+  std::uint64_t operator_not_sent = 0;  // refused before sending (no capability, board unknown, queue full)
+};
+
+// What an operator may ask for.
+enum class OperatorRequest { reset_now, zero_relay_on, zero_relay_off };
+
+enum class OperatorOutcome {
+  acknowledged,      // the board acked with status ok
+  refused_by_board,  // acked with another status (board_status)
+  timed_out,         // sent max_attempts times, never acked: the board may still have acted
+  link_lost,         // the link went down before an ack: the board may still have acted
+  no_capability,     // the board has no reset switch / zero relay: not sent
+  not_sent,          // no block seen yet (capabilities unknown) or too many commands pending
+};
+const char* to_string(OperatorOutcome o);
+const char* to_string(protocol::AckStatus s);
+
+struct OperatorResult {
+  OperatorOutcome outcome = OperatorOutcome::not_sent;
+  std::uint16_t request_id = 0;                          // 0 when not sent
+  protocol::AckStatus board_status = protocol::AckStatus::ok;  // the board's, when it answered
+  int attempts = 0;                                      // sends made
+  std::string why;                                       // when not acknowledged: a sentence for the operator
 };
 
 class ResetDriver {
@@ -53,6 +89,7 @@ class ResetDriver {
   // Sends a command; returns its request id, 0 when refused (too many pending).
   using Submit = std::function<std::uint16_t(protocol::CommandOp, std::uint32_t argument, Done)>;
   using Event = std::function<void(const std::string& kind, const std::string& detail, std::uint64_t index)>;
+  using Reported = std::function<void(const OperatorResult&)>;
 
   ResetDriver(ResetSchedule schedule, Submit submit, Event event);
 
@@ -60,12 +97,19 @@ class ResetDriver {
   // A reloaded schedule: the next block starts the new policy (its interval
   // counts from that block); the counters carry on.
   void reconfigure(const ResetSchedule& schedule);
+  // An operator's command, sent now (not at the next block). The capability is
+  // the last observed block's (the board's identity); before any block it is
+  // unknown and the command is not sent. `done` may be empty.
+  void command(OperatorRequest what, Reported done);
 
   nlohmann::json status() const;
   const ResetDriverCounters& counters() const { return counters_; }
 
  private:
-  void act(const chain::ScheduleAction& a, const BlockObservation& b);
+  void act(const chain::ScheduleAction& a);
+  // The one send path: capability check, submit, counters, events, completion.
+  // Uses the last observed block (capabilities, sample index for events).
+  void send(OperatorRequest what, const std::string& reason, bool from_operator, Reported done);
   std::optional<double> next_calendar_utc(double utc) const;
 
   ResetSchedule schedule_;

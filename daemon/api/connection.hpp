@@ -11,8 +11,11 @@
 // An oversize line gets an Invalid Request error and is skipped; the
 // connection carries on. A client idle too long, or one that leaves a request
 // line unfinished too long (ClientDeadline), gets one "closed" notification
-// (best effort, never waited for) and is closed at once. Owned by shared_ptr from its coroutines; the Hub
-// holds it weakly. Asio thread only.
+// (best effort, never waited for) and is closed at once. A reply Methods gives
+// later (a board command waiting for its ack) is queued when it comes; a
+// client that stops sending is still given the replies it awaits, within the
+// same 10 s grace. Owned by shared_ptr from its coroutines and from pending
+// replies' callbacks; the Hub holds it weakly. Asio thread only.
 #include <sys/socket.h>
 
 #include <cstdio>
@@ -106,6 +109,16 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
     drained_.cancel();
   }
 
+  // A request's reply, at once or later (a board command's). After the end
+  // (closed, cut off) it is dropped; a client that stopped sending still gets
+  // it, and the connection closes once nothing more is awaited or written.
+  void answered(std::optional<std::string> reply) {
+    --awaiting_;
+    if (finished_ || was_cut_off_) return;
+    if (reply) enqueue(std::move(*reply));
+    else if (closing_ && awaiting_ == 0 && !writing_) close();
+  }
+
   bool listening() const { return hooks_.listening && hooks_.listening(this); }
 
   // Sleeps until the deadline could next be passed; activity in between only
@@ -181,7 +194,7 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
       if (self->queued_bytes_ <= self->limits_.max_queued_bytes / 2) self->drained_.cancel();
     }
     self->writing_ = false;
-    if (ec || self->closing_) self->close();
+    if (ec || (self->closing_ && (self->awaiting_ == 0 || self->was_cut_off_))) self->close();
   }
 
   static asio::awaitable<void> read_loop(std::shared_ptr<Connection> self) {
@@ -219,8 +232,9 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
         } else {
           if (!line.empty() && line.back() == '\r') line.pop_back();
           if (line.find_first_not_of(" \t") != std::string::npos) {
-            auto r = self->methods_.handle_line(line, self->peer_);
-            if (r) self->enqueue(std::move(*r));
+            ++self->awaiting_;
+            self->methods_.handle_line(line, self->peer_,
+                                       [self](std::optional<std::string> r) { self->answered(std::move(r)); });
             if (self->peer_.close_after_reply) {
               self->closing_ = true;
               if (!self->writing_) self->close();
@@ -247,7 +261,7 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
     std::string().swap(line);
     // The peer stopped sending: finish writing what it asked for, within a grace.
     self->closing_ = true;
-    if (!self->writing_) {
+    if (!self->writing_ && self->awaiting_ == 0) {
       self->close();
     } else if (!self->was_cut_off_) {
       self->grace_.expires_after(std::chrono::seconds(10));
@@ -268,6 +282,7 @@ class Connection : public Sink, public std::enable_shared_from_this<Connection<S
   asio::steady_timer watchdog_;
   std::deque<std::string> out_;
   std::size_t queued_bytes_ = 0;
+  std::size_t awaiting_ = 0;  // requests handed to Methods and not yet answered
   bool writing_ = false;
   bool closing_ = false;
   bool finished_ = false;

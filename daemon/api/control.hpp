@@ -3,8 +3,11 @@
 // integrator now, open or close a zero window, and mark an interval the user
 // knows was quiet. The daemon's main wires it to the link (see main.cpp); the
 // API only validates parameters and reports what the implementation says.
-// Implementations run on the Asio thread and must not block.
+// Implementations run on the Asio thread and must not block: the board
+// commands (reset_now, zero_window) answer through a completion instead, which
+// Methods turns into a deferred reply.
 #include <cstdint>
+#include <functional>
 #include <optional>
 #include <string>
 
@@ -15,17 +18,22 @@ namespace accrue::daemon::api {
 struct ControlResult {
   bool ok = false;
   bool bad_params = false;                     // !ok because the request's values are invalid (not the board's state)
+  bool no_answer = false;                      // !ok because the board never answered: it may still have acted
   std::string message;                         // why, when !ok
-  nlohmann::json detail = nlohmann::json::object();  // what was done, when ok
+  nlohmann::json detail = nlohmann::json::object();  // what was done; when !ok, the error's data (may be empty)
 };
+
+// Called exactly once with a board command's outcome, on the Asio thread:
+// possibly before the call that took it returns (a refusal), else later.
+using ControlDone = std::function<void(ControlResult)>;
 
 class Control {
  public:
   virtual ~Control() = default;
   // Discharges every channel's integrator now (the protocol's reset is board-wide).
-  virtual ControlResult reset_now() = 0;
+  virtual void reset_now(ControlDone done) = 0;
   // start = true closes the zero relay (input shorted), false opens it.
-  virtual ControlResult zero_window(bool start) = 0;
+  virtual void zero_window(bool start, ControlDone done) = 0;
   // Records [from_index, to_index] of the active run as a quiet interval.
   virtual ControlResult mark_quiet(std::optional<int> channel, std::uint64_t from_index, std::uint64_t to_index,
                                    const std::string& note) = 0;
@@ -36,7 +44,7 @@ class Control {
   // refused with bad_params and every error named.
   virtual ControlResult new_calibration(int channel, const nlohmann::json& entry) {
     (void)channel, (void)entry;
-    return {false, false, "new calibrations are not offered here", nlohmann::json::object()};
+    return {false, false, false, "new calibrations are not offered here", nlohmann::json::object()};
   }
 };
 

@@ -1,40 +1,49 @@
 #include "daemon/api/link_control.hpp"
 
 #include "daemon/options.hpp"
-#include "protocol/encoder.hpp"
 
 namespace accrue::daemon::api {
 
-ControlResult LinkControl::send(protocol::CommandOp op, std::uint32_t argument, std::uint8_t capability, const char* what) {
+ControlResult control_result(const OperatorResult& r) {
+  ControlResult c;
+  const bool sent = r.request_id != 0;
+  nlohmann::json detail = {{"sent", sent},
+                           {"request_id", sent ? nlohmann::json(r.request_id) : nlohmann::json(nullptr)},
+                           {"acknowledged", r.outcome == OperatorOutcome::acknowledged}};
+  if (sent) detail["attempts"] = r.attempts;
+  if (r.outcome == OperatorOutcome::acknowledged) {
+    c.ok = true;
+    c.detail = std::move(detail);
+    return c;
+  }
+  detail["outcome"] = to_string(r.outcome);
+  if (r.outcome == OperatorOutcome::refused_by_board) detail["board_status"] = to_string(r.board_status);
+  c.no_answer = r.outcome == OperatorOutcome::timed_out || r.outcome == OperatorOutcome::link_lost;
+  c.message = r.why;
+  c.detail = std::move(detail);
+  return c;
+}
+
+void LinkControl::send(OperatorRequest what, ControlDone done) {
   ControlResult r;
+  r.detail = {{"sent", false}, {"request_id", nullptr}, {"acknowledged", false}, {"outcome", "not_sent"}};
   if (link_.state() != LinkState::up) {
     r.message = std::string("the link is ") + to_string(link_.state());
-    return r;
+    done(std::move(r));
+    return;
   }
-  const nlohmann::json status = ingest_.status();
-  if (!status.contains("board")) {
+  if (!ingest_.status().contains("board")) {
     r.message = "the board has not identified itself yet";
-    return r;
+    done(std::move(r));
+    return;
   }
-  if (!(status["board"].value("capabilities", 0) & capability)) {
-    r.message = std::string("the board does not offer ") + what;
-    return r;
-  }
-  const std::uint16_t request_id = next_request_id_++;
-  link_.send(protocol::encode(protocol::BoardCommand{request_id, op, argument}));
-  ingest_.record_event("control", std::string(what) + " requested over the API, request id " + std::to_string(request_id));
-  r.ok = true;
-  r.detail = {{"sent", true}, {"request_id", request_id}, {"acknowledged", false}};
-  return r;
+  resets_.command(what, [done = std::move(done)](const OperatorResult& o) { done(control_result(o)); });
 }
 
-ControlResult LinkControl::reset_now() {
-  return send(protocol::CommandOp::reset_now, 0, protocol::capability_bit::reset_switch, "reset now");
-}
+void LinkControl::reset_now(ControlDone done) { send(OperatorRequest::reset_now, std::move(done)); }
 
-ControlResult LinkControl::zero_window(bool start) {
-  return send(protocol::CommandOp::zero_relay, start ? 1 : 0, protocol::capability_bit::zero_relay,
-              start ? "zero window start" : "zero window stop");
+void LinkControl::zero_window(bool start, ControlDone done) {
+  send(start ? OperatorRequest::zero_relay_on : OperatorRequest::zero_relay_off, std::move(done));
 }
 
 ControlResult LinkControl::mark_quiet(std::optional<int> channel, std::uint64_t from_index, std::uint64_t to_index,

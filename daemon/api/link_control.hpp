@@ -1,31 +1,40 @@
 #pragma once
-// LinkControl is the daemon's Control: it turns API control requests into
-// host->board command frames (protocol::BoardCommand, PROTOCOL.md) sent with
-// SerialLink::send, and records each request as an event in the store. It
-// refuses when the link is down or the board lacks the capability. It does
-// not wait for the board's acknowledgement (the reply says so); the board's
-// reset and zero-relay events arrive on the data path as usual. Quiet windows
-// are recorded as "quiet_window" events and handed to the live chains'
-// baseline fits. A new calibration replaces a channel's config entry through
-// the config sink the daemon sets (a later reload from the file replaces it
+// LinkControl is the daemon's Control. Board commands (reset now, zero window
+// start/stop) go through the daemon's ResetDriver::command, the same path as
+// the reset schedule's: BoardCommands' request ids, acks and retries, the
+// driver's counters and events (reset_commanded, ... reason=command). It
+// refuses at once when the link is down or the board has not identified
+// itself; the driver refuses a board without the capability. The completion
+// comes when the outcome is known (acked, refused by the board, timed out,
+// link lost), as a ControlResult made by control_result(). Quiet windows are
+// recorded as "quiet_window" events and handed to the live chains' baseline
+// fits. A new calibration replaces a channel's config entry through the
+// config sink the daemon sets (a later reload from the file replaces it
 // again: the file stays the reference).
-// Borrows the link and ingest; Asio thread only.
+// Borrows the link, ingest and the reset driver, which must outlive the
+// commands in flight; Asio thread only.
 #include <cstdint>
 #include <functional>
 
 #include "daemon/api/control.hpp"
 #include "daemon/ingest.hpp"
+#include "daemon/reset_driver.hpp"
 #include "daemon/serial_link.hpp"
 
 namespace accrue::daemon::api {
 
+// An operator command's outcome as the API reports it: ok with {"sent",
+// "request_id", "acknowledged": true, "attempts"} when acked; otherwise !ok
+// with the reason, no_answer set when the board may still have acted (timed
+// out, link lost), and the same keys (plus "outcome", "board_status" when the
+// board answered) as the error's data.
+ControlResult control_result(const OperatorResult& r);
+
 class LinkControl final : public Control {
  public:
-  // next_request_id is shared with the daemon's other commands (identify).
-  LinkControl(SerialLink& link, Ingest& ingest, std::uint16_t& next_request_id)
-      : link_(link), ingest_(ingest), next_request_id_(next_request_id) {}
-  ControlResult reset_now() override;
-  ControlResult zero_window(bool start) override;
+  LinkControl(SerialLink& link, Ingest& ingest, ResetDriver& resets) : link_(link), ingest_(ingest), resets_(resets) {}
+  void reset_now(ControlDone done) override;
+  void zero_window(bool start, ControlDone done) override;
   ControlResult mark_quiet(std::optional<int> channel, std::uint64_t from_index, std::uint64_t to_index,
                            const std::string& note) override;
   ControlResult new_calibration(int channel, const nlohmann::json& entry) override;
@@ -34,10 +43,10 @@ class LinkControl final : public Control {
   void set_config_sink(std::function<void(const DaemonConfig&)> sink) { config_sink_ = std::move(sink); }
 
  private:
-  ControlResult send(protocol::CommandOp op, std::uint32_t argument, std::uint8_t capability, const char* what);
+  void send(OperatorRequest what, ControlDone done);
   SerialLink& link_;
   Ingest& ingest_;
-  std::uint16_t& next_request_id_;
+  ResetDriver& resets_;
   std::function<void(const DaemonConfig&)> config_sink_;
 };
 

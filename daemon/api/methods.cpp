@@ -24,6 +24,15 @@ json result_reply(const json& id, json result) { return {{"jsonrpc", "2.0"}, {"r
 json bad_params(const json& id, const std::string& why) {
   return error_reply(id, rpc_error::invalid_params, "Invalid params: " + why);
 }
+// A control request's reply: the result, or its error with the detail as data.
+json control_reply(const json& id, const ControlResult& r) {
+  if (r.ok) return result_reply(id, r.detail);
+  if (r.bad_params) return bad_params(id, r.message);
+  json e = r.no_answer ? error_reply(id, rpc_error::control_unconfirmed, "control unconfirmed: " + r.message)
+                       : error_reply(id, rpc_error::control_refused, "control refused: " + r.message);
+  if (r.detail.is_object() && !r.detail.empty()) e["error"]["data"] = r.detail;
+  return e;
+}
 json store_error(const json& id, const std::string& why) {
   return error_reply(id, rpc_error::store_unavailable, "store unavailable: " + why);
 }
@@ -153,30 +162,71 @@ bool Methods::open_store(std::string& why) {
   return true;
 }
 
-std::optional<std::string> Methods::handle_line(std::string_view line, Peer& peer) {
-  if (auto bad = first_invalid_utf8(line))
-    return error_reply(nullptr, rpc_error::parse_error, "Parse error: invalid UTF-8 at byte " + std::to_string(*bad)).dump();
+namespace {
+
+// A batch's replies, in request order, sent once its last part is answered.
+struct Batch {
+  std::vector<std::optional<json>> parts;
+  std::size_t waiting = 0;
+  Methods::Finish finish;
+  void part_done() {
+    if (--waiting > 0) return;
+    json replies = json::array();
+    for (auto& p : parts)
+      if (p) replies.push_back(std::move(*p));
+    if (replies.empty()) finish(std::nullopt);
+    else finish(Reply(std::move(replies)));
+  }
+};
+
+}  // namespace
+
+void Methods::handle_line(std::string_view line, Peer& peer, Respond respond) {
+  if (auto bad = first_invalid_utf8(line)) {
+    respond(error_reply(nullptr, rpc_error::parse_error, "Parse error: invalid UTF-8 at byte " + std::to_string(*bad)).dump());
+    return;
+  }
   const json request = json::parse(line.begin(), line.end(), nullptr, false);
-  if (request.is_discarded()) return error_reply(nullptr, rpc_error::parse_error, "Parse error: not valid JSON").dump();
-  auto reply = handle(request, peer);
-  if (!reply) return std::nullopt;
-  return std::move(*reply).dump();
+  if (request.is_discarded()) {
+    respond(error_reply(nullptr, rpc_error::parse_error, "Parse error: not valid JSON").dump());
+    return;
+  }
+  handle(request, peer, [respond = std::move(respond)](std::optional<Reply> reply) {
+    if (!reply) respond(std::nullopt);
+    else respond(std::move(*reply).dump());
+  });
 }
 
-std::optional<Reply> Methods::handle(const json& request, Peer& peer) {
-  if (request.is_array()) {
-    if (request.empty()) return error_reply(nullptr, rpc_error::invalid_request, "Invalid Request: empty batch");
-    json replies = json::array();
-    for (const auto& r : request) {
-      if (r.is_array()) {
-        replies.push_back(error_reply(nullptr, rpc_error::invalid_request, "Invalid Request: nested batch"));
-        continue;
-      }
-      if (auto reply = handle(r, peer)) replies.push_back(std::move(*reply).to_json());
-    }
-    if (replies.empty()) return std::nullopt;
-    return replies;
+void Methods::handle(const json& request, Peer& peer, Finish finish) {
+  if (!request.is_array()) {
+    bool deferred = false;
+    std::optional<Reply> reply = single(request, peer, finish, deferred);
+    if (!deferred) finish(std::move(reply));
+    return;
   }
+  if (request.empty()) {
+    finish(Reply(error_reply(nullptr, rpc_error::invalid_request, "Invalid Request: empty batch")));
+    return;
+  }
+  auto batch = std::make_shared<Batch>();
+  batch->parts.resize(request.size());
+  batch->waiting = request.size() + 1;  // + 1: not finished while parts are still being handed out
+  batch->finish = std::move(finish);
+  for (std::size_t i = 0; i < request.size(); ++i) {
+    if (request[i].is_array()) {
+      batch->parts[i] = error_reply(nullptr, rpc_error::invalid_request, "Invalid Request: nested batch");
+      batch->part_done();
+      continue;
+    }
+    handle(request[i], peer, [batch, i](std::optional<Reply> reply) {
+      if (reply) batch->parts[i] = std::move(*reply).to_json();
+      batch->part_done();
+    });
+  }
+  batch->part_done();
+}
+
+std::optional<Reply> Methods::single(const json& request, Peer& peer, const Finish& finish, bool& deferred) {
   if (!request.is_object()) return error_reply(nullptr, rpc_error::invalid_request, "Invalid Request: not an object");
   json id = nullptr;
   const bool has_id = request.contains("id");
@@ -205,12 +255,21 @@ std::optional<Reply> Methods::handle(const json& request, Peer& peer) {
     peer.close_after_reply = true;
     return error_reply(id, rpc_error::auth_required, "authentication required: call authenticate with the token first");
   }
-  Reply reply = call(method, params, id, peer);
-  if (!has_id && !peer.close_after_reply) return std::nullopt;  // a notification gets no reply, even an error
+  // A notification gets no reply, even an error (close_after_reply is only
+  // ever set at once, by authenticate, never by a deferred method).
+  std::optional<Reply> reply = call(method, params, id, peer, [finish, has_id](Reply r) {
+    finish(has_id ? std::optional<Reply>(std::move(r)) : std::nullopt);
+  });
+  if (!reply) {
+    deferred = true;
+    return std::nullopt;
+  }
+  if (!has_id && !peer.close_after_reply) return std::nullopt;
   return reply;
 }
 
-Reply Methods::call(const std::string& method, const json& params, const json& id, Peer& peer) {
+std::optional<Reply> Methods::call(const std::string& method, const json& params, const json& id, Peer& peer,
+                                   const Later& later) {
   if (method == "authenticate") {
     if (auto k = unknown_key(params, {"token"})) return bad_params(id, *k);
     if (!params.contains("token") || !params["token"].is_string()) return bad_params(id, "token must be a string");
@@ -245,9 +304,9 @@ Reply Methods::call(const std::string& method, const json& params, const json& i
   if (method == "window") return window(params, id);
   if (method == "segments") return segments(params, id);
   if (method == "events") return events(params, id);
-  if (method == "reset_now" || method == "zero_start" || method == "zero_stop" || method == "quiet_mark" ||
-      method == "calibration_new")
-    return control(method, params, id);
+  if (method == "reset_now" || method == "zero_start" || method == "zero_stop")
+    return board_command(method, params, id, later);
+  if (method == "quiet_mark" || method == "calibration_new") return control(method, params, id);
   if (method == "subscribe") return subscribe(params, id, peer);
   if (method == "unsubscribe") return unsubscribe(params, id, peer);
   return error_reply(id, rpc_error::method_not_found, "Method not found: " + method);
@@ -570,18 +629,22 @@ json Methods::events(const json& params, const json& id) {
   return result_reply(id, {{"events", list}, {"next_after", more ? json(rows.back().event_id) : json(nullptr)}});
 }
 
+std::optional<Reply> Methods::board_command(const std::string& method, const json& params, const json& id,
+                                            const Later& later) {
+  if (auto k = unknown_key(params, {})) return bad_params(id, *k);
+  if (!control_) return error_reply(id, rpc_error::control_refused, "control is not available");
+  // The reply waits for the board: Control calls back once, at once when it
+  // refuses, else from the command's completion (BoardCommands: ack, retries).
+  ControlDone done = [later, id](ControlResult r) { later(control_reply(id, r)); };
+  if (method == "reset_now") control_->reset_now(std::move(done));
+  else control_->zero_window(method == "zero_start", std::move(done));
+  return std::nullopt;
+}
+
 json Methods::control(const std::string& method, const json& params, const json& id) {
   std::string why;
   ControlResult r;
-  if (method == "reset_now") {
-    if (auto k = unknown_key(params, {})) return bad_params(id, *k);
-    if (!control_) return error_reply(id, rpc_error::control_refused, "control is not available");
-    r = control_->reset_now();
-  } else if (method == "zero_start" || method == "zero_stop") {
-    if (auto k = unknown_key(params, {})) return bad_params(id, *k);
-    if (!control_) return error_reply(id, rpc_error::control_refused, "control is not available");
-    r = control_->zero_window(method == "zero_start");
-  } else if (method == "calibration_new") {
+  if (method == "calibration_new") {
     if (auto k = unknown_key(params, {"channel", "settings"})) return bad_params(id, *k);
     auto channel = int_param(params, "channel", 0, 254, why);
     if (!why.empty()) return bad_params(id, why);
@@ -608,9 +671,7 @@ json Methods::control(const std::string& method, const json& params, const json&
     r = control_->mark_quiet(channel ? std::optional<int>(int(*channel)) : std::nullopt, *from, *to,
                              params.value("note", ""));
   }
-  if (!r.ok && r.bad_params) return bad_params(id, r.message);
-  if (!r.ok) return error_reply(id, rpc_error::control_refused, "control refused: " + r.message);
-  return result_reply(id, r.detail);
+  return control_reply(id, r);
 }
 
 json Methods::subscribe(const json& params, const json& id, Peer& peer) {

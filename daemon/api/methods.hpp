@@ -5,7 +5,16 @@
 // defines (-32700 parse, -32600 invalid request, -32601 no such method, -32602
 // bad params, -32603 internal) and our own (-32001 store unavailable, -32002
 // authentication required, -32003 cut off, -32004 control refused, -32005 too
-// many clients). It never throws. Methods and fields are in docs/api.md.
+// many clients, -32006 closed, -32007 control unconfirmed). It never throws.
+// Methods and fields are in docs/api.md.
+//
+// Replies go to a callback, called exactly once per request line: at once for
+// most methods, later for the board commands (reset_now, zero_start,
+// zero_stop), whose reply waits for the board's acknowledgement (Control
+// completes them from the command's completion, on the Asio thread). A batch
+// is answered once its slowest part is. Nothing of the Peer is used after the
+// call returns; a reply that comes later must be dropped by the caller's
+// callback when its connection is gone.
 // Runs on the Asio thread; it owns its two read-only store connections.
 #include <functional>
 #include <memory>
@@ -36,6 +45,7 @@ inline constexpr int cut_off = -32003;
 inline constexpr int control_refused = -32004;
 inline constexpr int too_many_clients = -32005;
 inline constexpr int timed_out = -32006;
+inline constexpr int control_unconfirmed = -32007;  // a board command sent but never acknowledged
 }  // namespace rpc_error
 
 nlohmann::json error_reply(const nlohmann::json& id, int code, const std::string& message);
@@ -57,17 +67,29 @@ struct MethodSettings {
 class Methods {
  public:
   using StatusSource = std::function<nlohmann::json()>;
+  // The serialized reply line, or nullopt when nothing is to be sent (notifications).
+  using Respond = std::function<void(std::optional<std::string>)>;
+  using Finish = std::function<void(std::optional<Reply>)>;
   // `database` is opened read-only on first use, so the daemon starts before the file has data.
   // `control` may be null (then control methods answer -32004).
   Methods(std::string database, StatusSource status, Hub& hub, Control* control, MethodSettings settings = {});
-  // A whole request line: parses it and dispatches.
-  std::optional<std::string> handle_line(std::string_view line, Peer& peer);
-  std::optional<Reply> handle(const nlohmann::json& request, Peer& peer);
+  // A whole request line: parses it and dispatches; `respond` is called once.
+  void handle_line(std::string_view line, Peer& peer, Respond respond);
+  // One request or a batch; `finish` is called once.
+  void handle(const nlohmann::json& request, Peer& peer, Finish finish);
   // Enables "reprocess" (otherwise it answers -32004); not owned, may be null.
   void set_reprocessor(Reprocessor* reprocessor) { reprocessor_ = reprocessor; }
 
  private:
-  Reply call(const std::string& method, const nlohmann::json& params, const nlohmann::json& id, Peer& peer);
+  using Later = std::function<void(Reply)>;
+  // One request object: what to send when known at once (nullopt: nothing),
+  // or `deferred` set when `finish` was taken and is (or already was) called.
+  std::optional<Reply> single(const nlohmann::json& request, Peer& peer, const Finish& finish, bool& deferred);
+  std::optional<Reply> call(const std::string& method, const nlohmann::json& params, const nlohmann::json& id, Peer& peer,
+                            const Later& later);
+  // reset_now, zero_start, zero_stop: the reply goes to `later` once the board has answered.
+  std::optional<Reply> board_command(const std::string& method, const nlohmann::json& params, const nlohmann::json& id,
+                                     const Later& later);
   nlohmann::json totals(const nlohmann::json& id);
   nlohmann::json runs(const nlohmann::json& id);
   nlohmann::json channels(const nlohmann::json& id);

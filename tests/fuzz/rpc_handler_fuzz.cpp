@@ -10,6 +10,7 @@
 #include <cstdlib>
 #include <filesystem>
 #include <memory>
+#include <optional>
 #include <string>
 
 #include "daemon/api/methods.hpp"
@@ -76,7 +77,14 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
   daemon::api::Peer peer;
   peer.authenticated = !tcp;
   const std::string_view line(reinterpret_cast<const char*>(data) + (tcp ? 1 : 0), tcp ? size - 1 : size);
-  const auto reply = f->methods->handle_line(line, peer);
+  // Without a Control nothing is deferred: the reply comes before handle_line returns, exactly once.
+  int calls = 0;
+  std::optional<std::string> reply;
+  f->methods->handle_line(line, peer, [&](std::optional<std::string> r) {
+    ++calls;
+    reply = std::move(r);
+  });
+  if (calls != 1) std::abort();
   if (!reply) return 0;  // notifications only
   const json r = json::parse(*reply, nullptr, false);
   if (r.is_discarded()) std::abort();

@@ -7,6 +7,7 @@
 #include "daemon/options.hpp"
 #include "daemon/reset_driver.hpp"
 #include "protocol/messages.hpp"
+#include "reset_rig.hpp"
 
 using namespace accrue::daemon;
 namespace status_bit = accrue::protocol::status_bit;
@@ -16,63 +17,9 @@ using accrue::protocol::BoardCommand;
 using accrue::protocol::CommandAck;
 using accrue::protocol::CommandOp;
 
-namespace {
-
-ResetSchedule schedule_from(const std::string& text) {
-  DaemonConfig c;
-  const auto errors = load_config_text(text, c);
-  REQUIRE(errors.empty());
-  return c.reset_schedule;
-}
-
-// A board of two channels behind a real BoardCommands: commands sent are kept
-// in `sent`; the test acks them (or not) and says when the board resets.
-struct Rig {
-  std::vector<BoardCommand> sent;
-  struct Ev {
-    std::string kind, detail;
-    std::uint64_t index;
-  };
-  std::vector<Ev> events;
-  double now = 1796169600.0;  // host clock for BoardCommands (2026-12-02T00:00:00Z)
-  BoardCommands commands{BoardCommandSettings{0.5, 3, 32}, [this](const BoardCommand& c) { sent.push_back(c); }};
-  ResetDriver driver;
-  std::uint8_t capabilities = capability_bit::reset_switch | capability_bit::zero_relay;
-  std::int64_t run_id = 1;
-  std::uint64_t index = 0;
-
-  explicit Rig(ResetSchedule s)
-      : driver(
-            std::move(s),
-            [this](CommandOp op, std::uint32_t arg, ResetDriver::Done done) {
-              return commands.submit(op, arg, now, std::move(done));
-            },
-            [this](const std::string& k, const std::string& d, std::uint64_t i) { events.push_back({k, d, i}); }) {}
-
-  // One block of 100 samples at 1 ms (0.1 s of board time).
-  void block(double level0, double level1 = 0.0, std::uint8_t status = 0) {
-    index += 100;
-    BlockObservation b;
-    b.run_id = run_id;
-    b.last_index = index - 1;
-    b.board_time_s = double(b.last_index) * 1e-3;
-    b.utc = 1796169600.0 + b.board_time_s;
-    b.status = status;
-    b.capabilities = capabilities;
-    b.level_fraction = {level0, level1};
-    b.full_scale_v = {10.0, 10.0};
-    driver.observe(b);
-    now += 0.1;
-    commands.tick(now);
-  }
-  int count(const std::string& kind) const {
-    int n = 0;
-    for (const auto& e : events) n += e.kind == kind;
-    return n;
-  }
-};
-
-}  // namespace
+using accrue::test::ResetRig;
+using accrue::test::schedule_from;
+using Rig = ResetRig;
 
 TEST_CASE("reset driver: the config's schedule maps onto the scheduler's settings", "[daemon][schedule]") {
   const auto s = scheduler_settings(schedule_from(R"({"reset_schedule": {
@@ -197,4 +144,159 @@ TEST_CASE("reset driver: a reloaded schedule takes over from the next block", "[
   for (int i = 0; i < 30; ++i) rig.block(0.9);
   CHECK(rig.driver.counters().commanded == 1);  // no schedule: no new commands (only the first one's resends)
   CHECK(rig.driver.status()["enabled"] == false);
+}
+
+// --- Operator commands (ResetDriver::command, the API's reset_now, zero_start, zero_stop) ---
+
+namespace {
+
+// Every outcome `done` was called with, in order.
+struct Outcomes {
+  std::vector<OperatorResult> got;
+  ResetDriver::Reported take() {
+    return [this](const OperatorResult& r) { got.push_back(r); };
+  }
+};
+
+}  // namespace
+
+TEST_CASE("reset driver: an operator reset is sent at once, answered when acked, and counted", "[daemon][schedule][operator]") {
+  Rig rig(schedule_from("{}"));  // no schedule: only the operator commands
+  rig.block(0.1);
+  Outcomes out;
+  rig.driver.command(OperatorRequest::reset_now, out.take());
+  REQUIRE(rig.sent.size() == 1);  // sent now, not at the next block
+  CHECK(rig.sent[0].op == CommandOp::reset_now);
+  CHECK(out.got.empty());  // nothing to report before the board answers
+  REQUIRE(rig.count("reset_commanded") == 1);
+  CHECK(rig.events.back().detail ==
+        "reset reason=command request_id=" + std::to_string(rig.sent[0].request_id));
+  CHECK(rig.events.back().index == 99);  // the last block's last sample
+  rig.commands.on_ack(CommandAck{rig.sent[0].request_id, AckStatus::ok}, rig.now);
+  REQUIRE(out.got.size() == 1);
+  CHECK(out.got[0].outcome == OperatorOutcome::acknowledged);
+  CHECK(out.got[0].request_id == rig.sent[0].request_id);
+  CHECK(out.got[0].attempts == 1);
+  CHECK(out.got[0].why.empty());
+  rig.block(0.0, 0.0, status_bit::reset_active);  // the board discharges
+  const auto st = rig.driver.status();
+  CHECK(st["last_reset"]["why"] == "command");
+  CHECK(st["board_initiated"] == 0);
+  CHECK(st["commanded"] == 1);  // with the schedule's, in the board's counts
+  CHECK(st["acked"] == 1);
+  CHECK(st["operator_commands"] == 1);
+  CHECK(st["operator_acked"] == 1);
+  CHECK(st["operator_failed"] == 0);
+  CHECK(st["operator_not_sent"] == 0);
+  CHECK(rig.count("reset_command_failed") == 0);
+}
+
+TEST_CASE("reset driver: the operator's zero relay commands, and a board that refuses one", "[daemon][schedule][operator]") {
+  Rig rig(schedule_from("{}"));
+  rig.block(0.1);
+  Outcomes out;
+  rig.driver.command(OperatorRequest::zero_relay_on, out.take());
+  rig.driver.command(OperatorRequest::zero_relay_off, out.take());
+  REQUIRE(rig.sent.size() == 2);
+  CHECK(rig.sent[0].op == CommandOp::zero_relay);
+  CHECK(rig.sent[0].argument == 1);  // PROTOCOL.md: 1 closes the relay
+  CHECK(rig.sent[1].op == CommandOp::zero_relay);
+  CHECK(rig.sent[1].argument == 0);
+  CHECK(rig.count("zero_relay_commanded") == 2);
+  rig.commands.on_ack(CommandAck{rig.sent[1].request_id, AckStatus::busy}, rig.now);  // answered out of order
+  rig.commands.on_ack(CommandAck{rig.sent[0].request_id, AckStatus::ok}, rig.now);
+  REQUIRE(out.got.size() == 2);
+  CHECK(out.got[0].outcome == OperatorOutcome::refused_by_board);
+  CHECK(out.got[0].request_id == rig.sent[1].request_id);
+  CHECK(out.got[0].board_status == AckStatus::busy);
+  CHECK(out.got[0].why == "the board refused request " + std::to_string(rig.sent[1].request_id) + ": busy");
+  CHECK(out.got[1].outcome == OperatorOutcome::acknowledged);
+  REQUIRE(rig.count("zero_relay_command_failed") == 1);
+  CHECK(rig.events.back().detail.find("zero_relay_off reason=command") == 0);
+  CHECK(rig.events.back().detail.find("board_status=busy") != std::string::npos);
+  const auto& k = rig.driver.counters();
+  CHECK(k.zero_commands == 2);
+  CHECK(k.zero_failed == 1);
+  CHECK(k.commanded == 0);  // resets only
+  CHECK(k.operator_commands == 2);
+  CHECK(k.operator_acked == 1);
+  CHECK(k.operator_failed == 1);
+}
+
+TEST_CASE("reset driver: an operator command never acked times out, and one cut by a lost link says so", "[daemon][schedule][operator]") {
+  Rig rig(schedule_from("{}"));
+  rig.block(0.1);
+  Outcomes out;
+  rig.driver.command(OperatorRequest::reset_now, out.take());
+  for (int i = 0; i < 20 && out.got.empty(); ++i) rig.block(0.1);  // host time on, no ack
+  CHECK(rig.sent.size() == 3);  // BoardCommandSettings: 3 attempts
+  REQUIRE(out.got.size() == 1);
+  CHECK(out.got[0].outcome == OperatorOutcome::timed_out);
+  CHECK(out.got[0].attempts == 3);
+  CHECK(out.got[0].why.find("did not acknowledge request " + std::to_string(rig.sent[0].request_id) + " after 3 sends") !=
+        std::string::npos);
+  REQUIRE(rig.count("reset_command_failed") == 1);
+  CHECK(rig.driver.counters().failed == 1);
+  CHECK(rig.driver.counters().operator_failed == 1);
+
+  rig.driver.command(OperatorRequest::zero_relay_on, out.take());
+  REQUIRE(rig.sent.size() == 4);
+  rig.commands.abandon_all();  // what the daemon does when the link goes down
+  REQUIRE(out.got.size() == 2);
+  CHECK(out.got[1].outcome == OperatorOutcome::link_lost);
+  CHECK(out.got[1].request_id == rig.sent[3].request_id);
+  CHECK(rig.count("zero_relay_command_failed") == 1);
+  CHECK(rig.driver.counters().operator_failed == 2);
+  CHECK(rig.driver.counters().operator_acked == 0);
+}
+
+TEST_CASE("reset driver: the operator is refused at once without the capability or before any block", "[daemon][schedule][operator]") {
+  Rig rig(schedule_from("{}"));
+  Outcomes out;
+  rig.driver.command(OperatorRequest::reset_now, out.take());  // no block yet: capabilities unknown
+  REQUIRE(out.got.size() == 1);
+  CHECK(out.got[0].outcome == OperatorOutcome::not_sent);
+  CHECK(out.got[0].request_id == 0);
+  rig.capabilities = capability_bit::zero_relay;  // a relay, no reset switch
+  rig.block(0.1);
+  rig.driver.command(OperatorRequest::reset_now, out.take());
+  rig.driver.command(OperatorRequest::reset_now, out.take());
+  REQUIRE(out.got.size() == 3);
+  for (std::size_t i : {1u, 2u}) {
+    CHECK(out.got[i].outcome == OperatorOutcome::no_capability);
+    CHECK(out.got[i].why == "the board has no reset switch");
+  }
+  CHECK(rig.sent.empty());
+  CHECK(rig.count("reset_not_commanded") == 2);  // each operator request, unlike the schedule's once per run
+  rig.capabilities = capability_bit::reset_switch;  // and the other way round
+  rig.block(0.1);
+  rig.driver.command(OperatorRequest::zero_relay_on, out.take());
+  REQUIRE(out.got.size() == 4);
+  CHECK(out.got[3].outcome == OperatorOutcome::no_capability);
+  CHECK(out.got[3].why == "the board has no zero relay");
+  CHECK(rig.count("zero_relay_not_commanded") == 1);
+  CHECK(rig.sent.empty());
+  const auto st = rig.driver.status();
+  CHECK(st["operator_not_sent"] == 4);
+  CHECK(st["operator_commands"] == 0);
+  CHECK(st["not_sent"] == 4);
+  CHECK(st["commanded"] == 0);
+}
+
+TEST_CASE("reset driver: an operator command beyond the pending limit is not sent", "[daemon][schedule][operator]") {
+  Rig rig(schedule_from("{}"));
+  rig.block(0.1);
+  Outcomes out;
+  for (int i = 0; i < 32; ++i) rig.driver.command(OperatorRequest::zero_relay_on, out.take());  // the rig's max_pending
+  CHECK(rig.sent.size() == 32);
+  CHECK(out.got.empty());
+  rig.driver.command(OperatorRequest::reset_now, out.take());
+  REQUIRE(out.got.size() == 1);
+  CHECK(out.got[0].outcome == OperatorOutcome::not_sent);
+  CHECK(out.got[0].why == "too many commands pending");
+  CHECK(rig.sent.size() == 32);
+  CHECK(rig.events.back().kind == "reset_command_failed");
+  CHECK(rig.driver.counters().operator_not_sent == 1);
+  CHECK(rig.driver.counters().operator_commands == 32);
+  CHECK(rig.driver.counters().commanded == 0);
 }
