@@ -142,10 +142,30 @@ for req, want in examples:
     else:
         ok("result" in got, f"{req['method']}: expected a result, got {got}")
         same_shape(want["result"], got["result"], req["method"])
+    if req["method"] in ("reset_now", "zero_start", "zero_stop"):
+        # The reply waits for the board: the simulator acknowledges these commands (docs/api.md).
+        r = got["result"]
+        ok(r["acknowledged"] is True and r["sent"] is True and isinstance(r["request_id"], int) and r["attempts"] >= 1,
+           f"{req['method']}: not acknowledged: {got}")
     if req["method"] == "subscribe":
         last_sub = got["result"]["subscription"]
 doc_conn.close()
 print(f"documented examples: {len(examples)} requests, {len(documented)} methods, all replies of the documented shape")
+
+# 1b. A board command's reply waits for the ack: in a batch (answered whole), and for a client that
+# stops sending right after asking (it still gets its reply). zero_stop: the simulator always acks it.
+b = Conn()
+b.send_raw(b'[{"jsonrpc":"2.0","id":"z","method":"zero_stop"},{"jsonrpc":"2.0","id":"s","method":"totals"}]\n')
+arr = json.loads(b.f.readline())
+ok(isinstance(arr, list) and [x.get("id") for x in arr] == ["z", "s"], f"batch with zero_stop: {arr}")
+ok(arr[0]["result"]["acknowledged"] is True and "result" in arr[1], f"batch with zero_stop: {arr}")
+b.send_raw(b'{"jsonrpc":"2.0","id":"h","method":"zero_stop"}\n')
+b.s.shutdown(socket.SHUT_WR)
+r = b.line()
+ok(r is not None and r.get("id") == "h" and r["result"]["acknowledged"] is True, f"zero_stop after half-close: {r}")
+ok(b.line() is None, "the daemon closes once the awaited reply is written")
+b.close()
+print("board commands: a batch waits for the ack, a half-closed client still gets its acknowledged reply")
 
 # 2. Malformed input of every kind, each followed by a good request on the same connection.
 bad = Conn()

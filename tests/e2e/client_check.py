@@ -98,11 +98,14 @@ out, _ = client("tail", "--topics", "events", "--seconds", "0.3", timeout=30)
 print("tail --seconds ends by itself: ok")
 
 # Control while the run is active.
+# The daemon answers only once the simulator has acknowledged the command (docs/api.md, reset_now).
 out, _ = client("reset")
-ok(out.startswith("reset now: sent to the board as request "), f"reset: {out!r}")
+ok(re.fullmatch(r"reset now: acknowledged by the board \(request \d+\)\n", out) is not None, f"reset: {out!r}")
 r = client_json("zero", "start")
-ok(r["sent"] is True and isinstance(r["request_id"], int), f"zero start --json: {r}")
-client("zero", "stop")
+ok(r["sent"] is True and r["acknowledged"] is True and isinstance(r["request_id"], int) and r["attempts"] >= 1,
+   f"zero start --json: {r}")
+out, _ = client("zero", "stop")
+ok(out.startswith("zero window stop: acknowledged by the board (request "), f"zero stop: {out!r}")
 client("zero", "sideways", rc=2)
 q_from, q_to = committed() - 30000, committed() - 20000
 out, _ = client("quiet", "--from", str(q_from), "--to", str(q_to), "--note", 'shutter "A", closed')
@@ -121,8 +124,10 @@ client("wait", "--timeout", "120", timeout=150)
 print("run ended")
 
 # Events the control commands left.
-ev = api.call("events", {"kind": ["control", "quiet_window"], "run_id": run_id})["events"]
-ok(sum(e["kind"] == "control" for e in ev) == 3, f"control events: {ev}")
+ev = api.call("events", {"kind": ["reset_commanded", "zero_relay_commanded", "quiet_window"], "run_id": run_id})["events"]
+commanded = [e["detail"].split(" request_id=")[0] for e in ev if "reason=command" in e["detail"]]
+ok(commanded == ["reset reason=command", "zero_relay_on reason=command", "zero_relay_off reason=command"],
+   f"operator command events: {ev}")
 quiet = [json.loads(e["detail"]) for e in ev if e["kind"] == "quiet_window"]
 ok(quiet == [{"from_index": q_from, "to_index": q_to, "note": 'shutter "A", closed'},
              {"from_index": F_FROM, "to_index": F_TO, "note": "beam off"}], f"quiet_window events: {quiet}")

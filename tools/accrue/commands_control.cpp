@@ -1,6 +1,7 @@
 // The control subcommands: reset, zero start|stop, quiet, calibrate
 // (docs/api.md, reset_now, zero_start, zero_stop, quiet_mark, calibration_new). They change what the board
-// does or what the baseline may use, so each prints what was asked.
+// does or what the baseline may use, so each prints what was asked. The daemon answers reset and zero only
+// once the board has acknowledged the command (or refused it, or never answered: then an error, exit 1).
 #include <cstdio>
 #include <string>
 
@@ -22,8 +23,7 @@ int send_command(const CommonOptions& o, const char* method, const char* what) {
     print_json(r.result);
     return 0;
   }
-  std::printf("%s: sent to the board as request %lld%s\n", what, (long long)r.result.value("request_id", 0),
-              r.result.value("acknowledged", false) ? ", acknowledged" : " (its acknowledgement is not awaited)");
+  std::printf("%s: acknowledged by the board (request %lld)\n", what, (long long)r.result.value("request_id", 0));
   return 0;
 }
 
