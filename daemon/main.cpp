@@ -363,6 +363,7 @@ int main(int argc, char** argv) {
                    {"raw_blocks_written", w.raw_blocks_written}, {"raw_blocks_shed", w.raw_blocks_shed},
                    {"series_points_written", w.series_points_written}, {"series_points_shed", w.series_points_shed},
                    {"segments_written", w.segments_written}, {"queued_bytes", w.queued_bytes},
+                   {"queued_bytes_peak", w.queued_bytes_peak},
                    {"last_commit_unix", w.last_commit_unix}, {"last_error", w.last_error},
                    {"last_commit_ms", w.last_commit_ms}, {"max_commit_ms", w.max_commit_ms},
                    {"mean_commit_ms", w.commits ? w.sum_commit_ms / double(w.commits) : 0.0},

@@ -327,6 +327,7 @@ void Writer::submit(Batch batch) {
     shed_notice_pending_ = false;
   }
   counters_.queued_bytes += batch.raw_bytes() + batch.derived_bytes();
+  counters_.queued_bytes_peak = std::max(counters_.queued_bytes_peak, counters_.queued_bytes);
   queue_.push_back(std::move(batch));
   if (counters_.queued_bytes > settings_.soft_limit_bytes / 4) wake_.notify_one();
 }
@@ -536,6 +537,7 @@ void Writer::writer_event(std::deque<Batch>& pending, std::string kind, std::str
   pending.back().events.push_back({std::nullopt, std::nullopt, std::nullopt, std::move(kind), std::move(detail), clock_()});
   std::lock_guard lock(mutex_);
   counters_.queued_bytes += 256;
+  counters_.queued_bytes_peak = std::max(counters_.queued_bytes_peak, counters_.queued_bytes);
 }
 
 // One commit cycle: the disk policy decides whether raw rows go in, then the

@@ -120,6 +120,7 @@ struct WriterCounters {
   std::uint64_t retention_passes = 0;
   std::uint64_t rows_deleted_by_retention = 0;
   std::size_t queued_bytes = 0;
+  std::size_t queued_bytes_peak = 0;  // the most queued_bytes has been since open (benchmarks, status)
   double last_commit_unix = 0.0;
   // Commit latency (BEGIN to COMMIT on the writer thread), for status and benchmarks only.
   double last_commit_ms = 0.0;
