@@ -224,7 +224,8 @@ void Ingest::on_block(const protocol::SampleBlock& b, double receive_unix) {
   raw.channel_count = b.channel_count;
   raw.status = b.status;
   raw.samples = b.samples_per_channel;
-  raw.codes = b.codes;  // the writer encodes them on its own thread
+  // Encoded here, so the writer's queue holds the stored bytes (~1.5 B a sample), not 4-byte codes.
+  raw.set_codes(b.codes, encode_scratch_);
   batch_.raw.push_back(std::move(raw));
 
   if (b.samples_per_channel > 0) apply_zero_windows(b.first_index + b.samples_per_channel - 1);

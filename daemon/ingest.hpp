@@ -141,6 +141,7 @@ class Ingest {
   std::function<void(const storage::EventRow&)> event_listener_;
   std::function<void(const BlockObservation&)> block_observer_;
   BlockObservation observation_;  // reused for every block, so observing allocates nothing once sized
+  std::vector<std::uint8_t> encode_scratch_;  // block_codec output per raw block, reused (see RawBlockRow::set_codes)
   std::vector<bool> zero_windows_done_;  // per config zero window, this run; cleared by start_run and reconfigure
 };
 

@@ -3,6 +3,7 @@
 // in data-flow order. A Batch is a value; the Writer owns it once submitted.
 #include <cstdint>
 #include <optional>
+#include <span>
 #include <string>
 #include <vector>
 
@@ -34,13 +35,24 @@ struct RunEnd {
   double ended_unix = 0.0;
 };
 
+// One raw block as it is stored: the producer encodes the codes (set_codes)
+// before submitting, so the writer's queue holds the bytes raw_block.data
+// gets (about 1.5 B per 24-bit sample) rather than 4-byte codes, and the
+// writer thread only writes them.
 struct RawBlockRow {
   std::int64_t run_id = 0;
   std::uint64_t first_index = 0;
   std::uint8_t channel_count = 1;
   std::uint8_t status = 0;
   std::uint16_t samples = 0;  // per channel
-  std::vector<std::int32_t> codes;  // ADC codes interleaved by sample; the writer encodes them
+  // block_codec encoding 2 of the ADC codes interleaved by sample, exactly as stored.
+  std::vector<std::uint8_t> data;
+
+  std::size_t code_count() const { return std::size_t(channel_count) * samples; }
+  // Sets data to the encoding of `codes` (channel_count * samples of them,
+  // interleaved by sample), allocated to its exact size. `scratch` is the
+  // caller's buffer, reused across blocks so encoding allocates once per block.
+  void set_codes(std::span<const std::int32_t> codes, std::vector<std::uint8_t>& scratch);
 };
 
 struct ChannelRows {
@@ -69,6 +81,7 @@ struct Batch {
   std::optional<RunEnd> run_end;
 
   bool empty() const { return !run_start && raw.empty() && channels.empty() && events.empty() && !run_end; }
+  // What the raw blocks hold in memory (encoded bytes allocated plus each row): what the queue limits count.
   std::size_t raw_bytes() const;
   std::size_t derived_bytes() const;
 };

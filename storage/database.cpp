@@ -32,7 +32,10 @@ Statement& Statement::bind(int pos, std::string_view v) {
   return *this;
 }
 Statement& Statement::bind(int pos, std::span<const std::uint8_t> blob) {
-  const int rc = sqlite3_bind_blob(stmt_, pos, blob.data(), int(blob.size()), SQLITE_TRANSIENT);
+  // An empty span may have no pointer, and sqlite3_bind_blob binds NULL for a null pointer: an
+  // empty blob must stay a blob (raw_block.data is NOT NULL; a block may carry 0 samples).
+  const int rc = blob.empty() ? sqlite3_bind_zeroblob(stmt_, pos, 0)
+                              : sqlite3_bind_blob(stmt_, pos, blob.data(), int(blob.size()), SQLITE_TRANSIENT);
   if (rc != SQLITE_OK) bind_error_ = rc;
   return *this;
 }

@@ -20,9 +20,16 @@
 
 namespace accrue::storage {
 
+void RawBlockRow::set_codes(std::span<const std::int32_t> codes, std::vector<std::uint8_t>& scratch) {
+  scratch.clear();
+  block_codec::encode(codes, channel_count, scratch);
+  // A copy of exact size: the encoder's growth would leave up to twice the bytes allocated in the queue.
+  data.assign(scratch.begin(), scratch.end());
+}
+
 std::size_t Batch::raw_bytes() const {
   std::size_t n = 0;
-  for (const auto& r : raw) n += r.codes.size() * sizeof(std::int32_t) + 32;
+  for (const auto& r : raw) n += r.data.capacity() + sizeof(RawBlockRow);
   return n;
 }
 
@@ -705,7 +712,7 @@ Status Writer::commit(std::deque<Batch>& pending, bool with_raw) {
   for (const Batch& b : pending) {
     if (with_raw) {
       counters_.raw_blocks_written += b.raw.size();
-      for (const auto& r : b.raw) counters_.raw_samples_written += r.codes.size();
+      for (const auto& r : b.raw) counters_.raw_samples_written += r.code_count();
     } else {
       counters_.raw_blocks_shed_disk += b.raw.size();
     }
@@ -866,18 +873,15 @@ Status Writer::write_batch(const Batch& b, bool with_raw) {
       if (Status s2 = st.derivation_channel.run(); !s2.ok()) return s2;
     }
   }
-  std::vector<std::uint8_t> encoded;
   for (const auto& r : b.raw) {
     if (!with_raw) break;
-    encoded.clear();
-    block_codec::encode(r.codes, r.channel_count, encoded);
-    attempt_raw_bytes_ += encoded.size();
+    attempt_raw_bytes_ += r.data.size();
     st.raw.bind(1, r.run_id)
         .bind(2, std::int64_t(r.first_index))
         .bind(3, std::int64_t(r.channel_count))
         .bind(4, std::int64_t(r.samples))
         .bind(5, std::int64_t(r.status))
-        .bind(6, std::span<const std::uint8_t>(encoded));
+        .bind(6, std::span<const std::uint8_t>(r.data));
     if (Status s = st.raw.run(); !s.ok()) return s;
   }
   for (const auto& c : b.channels) {

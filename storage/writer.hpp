@@ -1,14 +1,18 @@
 #pragma once
 // Writer owns the database's only writing connection and the thread that uses
-// it. submit() never touches the disk: it queues a Batch and returns. The
+// it. submit() never touches the disk: it queues a Batch and returns. Raw
+// blocks come encoded by the producer (RawBlockRow::set_codes), so the queue
+// holds the bytes that will be stored and the thread only writes them. The
 // thread commits everything queued in one transaction at most every
 // commit_interval, with the running-total checkpoints and the rollup buckets
 // in the same transaction as the rows they cover, so after a crash the file
 // holds a consistent prefix and a restart resumes exactly from the last commit.
 //
-// Overload policy (explicit and counted): above soft_limit_bytes of queued
-// data, new raw blocks are shed; above hard_limit_bytes, new series points are
-// shed too and an event says so. Segments, baselines, events and checkpoints
+// Overload policy (explicit and counted): a batch whose raw blocks would take
+// the queue above soft_limit_bytes has them shed; one whose derived rows would
+// take it above hard_limit_bytes has its series points shed too; an event says
+// so once the queue is below half the soft limit again. Queued bytes are
+// Batch::raw_bytes() (encoded bytes allocated) plus Batch::derived_bytes(). Segments, baselines, events and checkpoints
 // are never shed: they are small, and the checkpoint carries the total, so a
 // shed series point never corrupts it. A failed commit is rolled back and
 // retried with the same rows on the next cycle.

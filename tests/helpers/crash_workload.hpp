@@ -63,7 +63,10 @@ inline storage::Batch make_batch(std::uint64_t k, double total_before, std::int6
   raw.run_id = 1;
   raw.first_index = first;
   raw.samples = kSamples;
-  for (std::uint64_t i = first; i <= last; ++i) raw.codes.push_back(code(i));
+  std::vector<std::int32_t> codes;
+  for (std::uint64_t i = first; i <= last; ++i) codes.push_back(code(i));
+  std::vector<std::uint8_t> scratch;
+  raw.set_codes(codes, scratch);
   b.raw.push_back(std::move(raw));
   const double total = total_before + increment(k);
   storage::ChannelRows rows;

@@ -3,6 +3,7 @@
 // codes, one series point whose total is the batch number, a checkpoint.
 #include <cstdint>
 #include <random>
+#include <vector>
 
 #include "storage_fixture.hpp"
 
@@ -18,7 +19,10 @@ inline Batch make_batch(std::int64_t calibration_id, std::uint64_t k, std::uint1
   raw.run_id = 1;
   raw.first_index = k * samples;
   raw.samples = samples;
-  for (int i = 0; i < samples; ++i) raw.codes.push_back(std::int32_t(rng() % (1u << 24)) - (1 << 23));
+  std::vector<std::int32_t> codes;
+  for (int i = 0; i < samples; ++i) codes.push_back(std::int32_t(rng() % (1u << 24)) - (1 << 23));
+  std::vector<std::uint8_t> scratch;
+  raw.set_codes(codes, scratch);
   b.raw.push_back(std::move(raw));
   ChannelRows rows;
   rows.channel = 0;

@@ -113,11 +113,12 @@ TEST_CASE("writer: a long outage sheds raw blocks only at the queue's limit, cou
   accrue::testing::FailingVfs vfs;
   WriterSettings settings = fast_settings();
   const std::uint16_t samples = 200;
-  const std::size_t raw_bytes = samples * sizeof(std::int32_t) + 32;  // Batch::raw_bytes() of one block
+  std::mt19937 rng(22);
+  std::mt19937 probe_rng(rng);
+  const std::size_t raw_bytes = make_batch(0, 0, samples, probe_rng, false).raw_bytes();  // one encoded block
   settings.soft_limit_bytes = 20 * raw_bytes;
   settings.hard_limit_bytes = 1u << 20;
   Rig rig(settings);
-  std::mt19937 rng(22);
   std::uint64_t k = 0;
   rig.w->submit(make_batch(rig.cal, k++, samples, rng, true));
   REQUIRE(rig.w->wait_until([&](const WriterCounters& c) { return committed_to(c, k * samples - 1); }));
