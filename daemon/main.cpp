@@ -213,6 +213,8 @@ int main(int argc, char** argv) {
 
   storage::WriterSettings writer_settings;
   writer_settings.commit_interval = std::chrono::milliseconds(config.commit_interval_ms);
+  writer_settings.soft_limit_bytes = std::size_t(config.writer_queue_soft_limit_mib * double(1u << 20));
+  writer_settings.hard_limit_bytes = std::size_t(config.writer_queue_hard_limit_mib * double(1u << 20));
   std::unique_ptr<storage::Writer> writer;
   // Writer::open migrates a store of an older build; on a large file that
   // copies every raw block, which can take minutes, so say so before it starts.
@@ -364,6 +366,8 @@ int main(int argc, char** argv) {
                    {"series_points_written", w.series_points_written}, {"series_points_shed", w.series_points_shed},
                    {"segments_written", w.segments_written}, {"queued_bytes", w.queued_bytes},
                    {"queued_bytes_peak", w.queued_bytes_peak},
+                   {"queue_soft_limit_bytes", writer_settings.soft_limit_bytes},
+                   {"queue_hard_limit_bytes", writer_settings.hard_limit_bytes},
                    {"last_commit_unix", w.last_commit_unix}, {"last_error", w.last_error},
                    {"last_commit_ms", w.last_commit_ms}, {"max_commit_ms", w.max_commit_ms},
                    {"mean_commit_ms", w.commits ? w.sum_commit_ms / double(w.commits) : 0.0},

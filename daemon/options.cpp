@@ -342,6 +342,30 @@ void load_retention(const json& j, DaemonConfig& config, Checker& c) {
     c.number(j["rollup_days"], "retention.rollup_days", config.retention.rollup_days, 0, kMaxDays);
 }
 
+// The writer's queue limits: each from 1 MiB (a smaller queue sheds an ordinary
+// commit interval's data) to 64 GiB (beyond is a typo), and soft <= hard.
+void load_writer_queue(const json& j, DaemonConfig& config, Checker& c) {
+  constexpr double kMinMib = 1.0, kMaxMib = 65536.0;
+  bool soft_ok = true, hard_ok = true;
+  if (j.contains("writer_queue_soft_limit_mib"))
+    soft_ok = c.number(j["writer_queue_soft_limit_mib"], "writer_queue_soft_limit_mib",
+                       config.writer_queue_soft_limit_mib, kMinMib, kMaxMib);
+  if (j.contains("writer_queue_hard_limit_mib"))
+    hard_ok = c.number(j["writer_queue_hard_limit_mib"], "writer_queue_hard_limit_mib",
+                       config.writer_queue_hard_limit_mib, kMinMib, kMaxMib);
+  if (!soft_ok || !hard_ok) return;  // already reported
+  if (!j.contains("writer_queue_soft_limit_mib") && !j.contains("writer_queue_hard_limit_mib")) return;
+  if (config.writer_queue_soft_limit_mib > config.writer_queue_hard_limit_mib) {
+    std::ostringstream reason;
+    reason << "must not exceed writer_queue_hard_limit_mib (" << config.writer_queue_hard_limit_mib
+           << (j.contains("writer_queue_hard_limit_mib") ? "" : ", the default")
+           << "): raw blocks are shed first, so the soft limit is the lower one";
+    c.fail("writer_queue_soft_limit_mib", j.contains("writer_queue_soft_limit_mib") ? j["writer_queue_soft_limit_mib"]
+                                                                                   : json(config.writer_queue_soft_limit_mib),
+           reason.str());
+  }
+}
+
 void load_tcp(const json& j, DaemonConfig& config, Checker& c) {
   if (j.is_null()) {
     config.tcp.reset();
@@ -396,6 +420,7 @@ std::vector<ConfigError> load_config_text(const std::string& text, DaemonConfig&
       "device", "baud", "data_bits", "stop_bits", "parity", "flow_control", "reconnect_max_s", "protocol",
       "settle_s", "end_window", "series_interval_s", "channels", "reset_schedule", "zero_windows",
       "database", "commit_interval_ms", "retention", "disk_floor_mb",
+      "writer_queue_soft_limit_mib", "writer_queue_hard_limit_mib",
       "socket", "socket_group", "tcp", "log_level", "stop_timeout_s", "api_max_clients", "api_client_buffer_bytes",
       "api_idle_timeout_s", "api_line_timeout_s"};
   for (auto it = j.begin(); it != j.end(); ++it)
@@ -446,6 +471,7 @@ std::vector<ConfigError> load_config_text(const std::string& text, DaemonConfig&
     c.integer(j["commit_interval_ms"], "commit_interval_ms", config.commit_interval_ms, 10, 60'000);
   if (j.contains("retention")) load_retention(j["retention"], config, c);
   if (j.contains("disk_floor_mb")) c.number(j["disk_floor_mb"], "disk_floor_mb", config.disk_floor_mb, 0, 1e7);
+  load_writer_queue(j, config, c);
   // api
   if (j.contains("socket")) c.text(j["socket"], "socket", config.socket_path);
   if (j.contains("socket_group")) c.text(j["socket_group"], "socket_group", config.socket_group);

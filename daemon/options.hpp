@@ -112,6 +112,12 @@ struct DaemonConfig {
   int commit_interval_ms = 250;
   Retention retention;
   double disk_floor_mb = 100.0;
+  // The writer's queue (storage::WriterSettings), MiB (2^20 bytes): raw blocks
+  // that would take it above the soft limit are shed, series points above the
+  // hard limit. 8 MiB keeps the daemon under 30 MB resident at full speed
+  // (tools/bench/RESULTS.md); the hard limit holds derived rows through an outage.
+  double writer_queue_soft_limit_mib = 8.0;
+  double writer_queue_hard_limit_mib = 256.0;
   // api
   std::string socket_path = "accrued.sock";
   std::string socket_group;  // empty = the daemon's own group

@@ -51,6 +51,8 @@ ReloadPlan plan_reload(const DaemonConfig& running, const DaemonConfig& fresh, s
               fresh.retention.rollup_days != running.retention.rollup_days,
           "retention");
   restart(fresh.disk_floor_mb != running.disk_floor_mb, "disk_floor_mb");
+  restart(fresh.writer_queue_soft_limit_mib != running.writer_queue_soft_limit_mib, "writer_queue_soft_limit_mib");
+  restart(fresh.writer_queue_hard_limit_mib != running.writer_queue_hard_limit_mib, "writer_queue_hard_limit_mib");
   restart(fresh.socket_path != running.socket_path, "socket");
   restart(fresh.socket_group != running.socket_group, "socket_group");
   restart(fresh.api_idle_timeout_s != running.api_idle_timeout_s, "api_idle_timeout_s");

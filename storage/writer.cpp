@@ -313,12 +313,14 @@ void Writer::start() {
 void Writer::submit(Batch batch) {
   std::lock_guard lock(mutex_);
   ++counters_.batches_accepted;
-  if (counters_.queued_bytes + batch.raw_bytes() > settings_.soft_limit_bytes && !batch.raw.empty()) {
+  // Raw blocks are taken only while the queue, with the whole batch, stays within the soft limit.
+  const std::size_t derived = batch.derived_bytes();
+  if (counters_.queued_bytes + derived + batch.raw_bytes() > settings_.soft_limit_bytes && !batch.raw.empty()) {
     counters_.raw_blocks_shed += batch.raw.size();
     batch.raw.clear();
     shed_notice_pending_ = true;
   }
-  if (counters_.queued_bytes + batch.derived_bytes() > settings_.hard_limit_bytes) {
+  if (counters_.queued_bytes + derived > settings_.hard_limit_bytes) {
     for (auto& c : batch.channels) {
       counters_.series_points_shed += c.output.series.size();
       c.output.series.clear();

@@ -8,8 +8,9 @@
 // in the same transaction as the rows they cover, so after a crash the file
 // holds a consistent prefix and a restart resumes exactly from the last commit.
 //
-// Overload policy (explicit and counted): a batch whose raw blocks would take
-// the queue above soft_limit_bytes has them shed; one whose derived rows would
+// Overload policy (explicit and counted): a batch that would take the queue
+// above soft_limit_bytes has its raw blocks shed (so the queue is within the
+// soft limit whenever a raw block is taken); one whose derived rows would
 // take it above hard_limit_bytes has its series points shed too; an event says
 // so once the queue is below half the soft limit again. Queued bytes are
 // Batch::raw_bytes() (encoded bytes allocated) plus Batch::derived_bytes(). Segments, baselines, events and checkpoints
@@ -77,7 +78,9 @@ namespace accrue::storage {
 
 struct WriterSettings {
   std::chrono::milliseconds commit_interval{250};
-  std::size_t soft_limit_bytes = 64u << 20;
+  // Queue limits (see Overload policy); the daemon sets them from writer_queue_*_limit_mib.
+  // 8 MiB of encoded raw blocks is ~5.6 M samples, seconds at 1 M samples/s.
+  std::size_t soft_limit_bytes = 8u << 20;
   std::size_t hard_limit_bytes = 256u << 20;
   // WAL management.
   int wal_checkpoint_frames = 1000;                        // about 4 MiB of 4 KiB pages

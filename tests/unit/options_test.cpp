@@ -84,6 +84,16 @@ TEST_CASE("options: each error kind names the key, the value and the reason") {
       {R"({ "retention": { "raw_days": -1 } })", "retention.raw_days", "-1", ">= 0"},
       {R"({ "retention": { "raw": 14 } })", "retention.raw", "14", "unknown key"},
       {R"({ "disk_floor_mb": "1G" })", "disk_floor_mb", "\"1G\"", "must be a number"},
+      {R"({ "writer_queue_soft_limit_mib": 0 })", "writer_queue_soft_limit_mib", "0", ">= 1"},
+      {R"({ "writer_queue_hard_limit_mib": -256 })", "writer_queue_hard_limit_mib", "-256", ">= 1"},
+      {R"({ "writer_queue_hard_limit_mib": 1e9 })", "writer_queue_hard_limit_mib", "1000000000.0", "<= 65536"},
+      {R"({ "writer_queue_soft_limit_mib": "8M" })", "writer_queue_soft_limit_mib", "\"8M\"", "must be a number"},
+      {R"({ "writer_queue_soft_limit_mib": 64, "writer_queue_hard_limit_mib": 32 })", "writer_queue_soft_limit_mib",
+       "64", "must not exceed writer_queue_hard_limit_mib (32)"},
+      {R"({ "writer_queue_soft_limit_mib": 300 })", "writer_queue_soft_limit_mib", "300",
+       "must not exceed writer_queue_hard_limit_mib (256, the default)"},
+      {R"({ "writer_queue_hard_limit_mib": 4 })", "writer_queue_soft_limit_mib", "8.0",
+       "must not exceed writer_queue_hard_limit_mib (4)"},
       {R"({ "socket_group": 20 })", "socket_group", "20", "must be a string"},
       {R"({ "tcp": { "token_file": "/etc/accrue/token" } })", "tcp.port", "", "is required"},
       {R"({ "tcp": { "port": 70000, "token_file": "/etc/accrue/token" } })", "tcp.port", "70000", "between 1 and 65535"},
@@ -188,8 +198,26 @@ TEST_CASE("options: the shipped example config is valid and sets what it documen
   CHECK(config.zero_windows[0].from_unix == 1796155200.0);
   CHECK(config.retention.raw_days == 14.0);
   CHECK(config.disk_floor_mb == 500.0);
+  CHECK(config.writer_queue_soft_limit_mib == 8.0);
+  CHECK(config.writer_queue_hard_limit_mib == 256.0);
   CHECK_FALSE(config.tcp);
   CHECK(config.log_level == accrue::LogLevel::info);
+}
+
+TEST_CASE("options: the writer queue limits are read in MiB, fractions allowed, the soft one at most the hard one") {
+  DaemonConfig config;
+  CHECK(config.writer_queue_soft_limit_mib == 8.0);  // the defaults the example config and RESULTS.md state
+  CHECK(config.writer_queue_hard_limit_mib == 256.0);
+  auto errors = load_config_text(R"({ "writer_queue_soft_limit_mib": 2.5, "writer_queue_hard_limit_mib": 2.5 })", config);
+  INFO(joined(errors));
+  CHECK(errors.empty());  // equal limits are allowed: raw and series points shed at the same depth
+  CHECK(config.writer_queue_soft_limit_mib == 2.5);
+  CHECK(config.writer_queue_hard_limit_mib == 2.5);
+  DaemonConfig low;
+  errors = load_config_text(R"({ "writer_queue_hard_limit_mib": 16 })", low);  // above the default soft limit
+  CHECK(errors.empty());
+  CHECK(low.writer_queue_hard_limit_mib == 16.0);
+  CHECK(low.writer_queue_soft_limit_mib == 8.0);
 }
 
 TEST_CASE("options: the API idle and unfinished-line timeouts are read in seconds, fractions allowed") {

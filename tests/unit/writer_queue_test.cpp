@@ -113,3 +113,102 @@ TEST_CASE("writer: raw blocks queued encoded read back as the codes put in", "[s
     CHECK(back[k].codes == input[k].codes);
   }
 }
+
+namespace {
+
+// Batch k of one run: a 250-sample raw block whose codes (and so encoded size) are the
+// same in every batch, one series point and a checkpoint, so each batch queues the same bytes.
+Batch fixed_batch(std::int64_t calibration_id, std::uint64_t k) {
+  std::mt19937 unused(0);
+  Batch b = make_batch(calibration_id, k, 250, unused, k == 0);
+  std::vector<std::int32_t> codes;
+  for (int i = 0; i < 250; ++i) codes.push_back(100000 + 37 * i);
+  std::vector<std::uint8_t> scratch;
+  b.raw[0].set_codes(codes, scratch);
+  return b;
+}
+
+}  // namespace
+
+TEST_CASE("writer: raw blocks are shed only when they would take the queue above the soft limit, series points only above the hard limit",
+          "[storage][writer]") {
+  // Deterministic: the writer's thread is not started while batches are submitted, so
+  // nothing leaves the queue and queued_bytes is exactly the sum of what was accepted.
+  TempDir dir("shed");
+  const std::string path = dir.file("s.db");
+  const Batch probe = fixed_batch(1, 1);
+  const std::size_t raw = probe.raw_bytes(), derived = probe.derived_bytes(), per = raw + derived;
+  REQUIRE(fixed_batch(1, 0).raw_bytes() == raw);
+  // The soft limit sits at ten batches plus `slack`: an 11th batch keeps its raw block only if the
+  // whole batch fits, slack >= per.
+  const bool slack_fits = GENERATE(false, true);
+  const std::size_t slack = slack_fits ? per : per - 1;
+  INFO("raw " << raw << " B, derived " << derived << " B per batch; slack " << slack);
+  WriterSettings settings;
+  settings.commit_interval = std::chrono::milliseconds(1);
+  settings.soft_limit_bytes = 10 * per + slack;
+  // After the raw blocks stop fitting, each batch queues only its derived rows: five more fit exactly.
+  const std::size_t accepted_raw = slack_fits ? 11 : 10;
+  const std::size_t hard = accepted_raw * per + (15 - accepted_raw) * derived;
+  settings.hard_limit_bytes = hard;
+  std::unique_ptr<Writer> w;
+  REQUIRE(Writer::open(path, settings, [] { return kWriterT0; }, w,
+                       [] { return std::optional<std::uint64_t>(1ull << 40); })
+              .ok());
+  chain::Calibration cal;
+  REQUIRE(w->ensure_calibration(0, cal).ok());
+
+  std::uint64_t k = 0;
+  for (; k < 10; ++k) {
+    w->submit(fixed_batch(cal.id, k));
+    const auto c = w->counters();
+    INFO("batch " << k);
+    CHECK(c.queued_bytes == (k + 1) * per);  // at most the soft limit minus slack: never shed below it
+    CHECK(c.raw_blocks_shed == 0);
+  }
+  w->submit(fixed_batch(cal.id, k++));  // the 11th: 11 * per against 10 * per + slack
+  auto c = w->counters();
+  CHECK(c.raw_blocks_shed == (slack_fits ? 0u : 1u));
+  CHECK(c.queued_bytes == (slack_fits ? 11 * per : 10 * per + derived));
+  CHECK(c.queued_bytes <= settings.soft_limit_bytes);
+  if (slack_fits) {
+    // Now exactly at the soft limit: the next batch would go above it.
+    CHECK(c.queued_bytes == settings.soft_limit_bytes);
+    w->submit(fixed_batch(cal.id, k++));
+    CHECK(w->counters().raw_blocks_shed == 1);
+  }
+  // Derived rows only, up to exactly the hard limit: no series point is shed on the way.
+  while (w->counters().queued_bytes + derived <= hard) {
+    w->submit(fixed_batch(cal.id, k++));
+    CHECK(w->counters().series_points_shed == 0);
+  }
+  c = w->counters();
+  CHECK(c.queued_bytes == hard);
+  CHECK(k == 15);
+  CHECK(c.raw_blocks_shed == 15 - accepted_raw);
+  // Above the hard limit: this batch's series point is shed, its raw block too, its checkpoint is kept.
+  w->submit(fixed_batch(cal.id, k++));
+  c = w->counters();
+  CHECK(c.series_points_shed == 1);
+  CHECK(c.raw_blocks_shed == 16 - accepted_raw);
+  CHECK(c.queued_bytes > hard);  // the checkpoint is never shed
+  CHECK(c.queued_bytes_peak == c.queued_bytes);
+
+  w->start();
+  REQUIRE(w->wait_until([&](const WriterCounters& x) { return committed_to(x, k * 250 - 1); }));
+  CHECK(w->counters().queued_bytes == 0);
+  // Below half the soft limit again: the next batch carries the "writer_shed" event and is not shed.
+  w->submit(fixed_batch(cal.id, k++));
+  w->stop();
+  c = w->counters();
+  CHECK(c.raw_blocks_shed == 16 - accepted_raw);
+  CHECK(c.raw_blocks_written == accepted_raw + 1);
+  CHECK(c.raw_blocks_written + c.raw_blocks_shed == k);
+  CHECK(c.series_points_written == 16);
+  CHECK(c.queued_bytes == 0);
+  CHECK(scalar(path, "SELECT count(*) FROM raw_block") == double(accepted_raw + 1));
+  CHECK(scalar(path, "SELECT count(*) FROM series_point") == 16);
+  CHECK(scalar(path, "SELECT total FROM total_checkpoint WHERE channel = 0") == double(k));  // no checkpoint lost
+  CHECK(scalar(path, "SELECT count(*) FROM event WHERE kind = 'writer_shed' AND detail = 'raw_blocks_shed=" +
+                         std::to_string(16 - accepted_raw) + " series_points_shed=1'") == 1);
+}
