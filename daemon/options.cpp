@@ -229,12 +229,19 @@ void load_device(const json& j, DaemonConfig& config, Checker& c) {
   config.device = s;
 }
 
-// "HH:MM" -> minute of the day.
-bool parse_time_of_day(const std::string& t, int& minute) {
-  if (t.size() != 5 || t[2] != ':' || !isdigit(t[0]) || !isdigit(t[1]) || !isdigit(t[3]) || !isdigit(t[4])) return false;
-  const int h = (t[0] - '0') * 10 + (t[1] - '0'), m = (t[3] - '0') * 10 + (t[4] - '0');
-  if (h > 23 || m > 59) return false;
-  minute = h * 60 + m;
+// "HH:MM" or "HH:MM:SS" -> second of the day.
+bool parse_time_of_day(const std::string& t, int& second) {
+  const auto two = [&](std::size_t at, int& v) {
+    if (at + 2 > t.size() || !isdigit((unsigned char)t[at]) || !isdigit((unsigned char)t[at + 1])) return false;
+    v = (t[at] - '0') * 10 + (t[at + 1] - '0');
+    return true;
+  };
+  int h = 0, m = 0, s = 0;
+  if (t.size() != 5 && t.size() != 8) return false;
+  if (!two(0, h) || t[2] != ':' || !two(3, m)) return false;
+  if (t.size() == 8 && (t[5] != ':' || !two(6, s))) return false;
+  if (h > 23 || m > 59 || s > 59) return false;
+  second = (h * 60 + m) * 60 + s;
   return true;
 }
 
@@ -259,7 +266,7 @@ void load_reset_schedule(const json& j, DaemonConfig& config, Checker& c) {
   }
   if (j.contains("calendar")) {
     if (!j["calendar"].is_array()) {
-      c.fail(at + ".calendar", j["calendar"], "must be an array of {\"at\": \"HH:MM\", ...} objects");
+      c.fail(at + ".calendar", j["calendar"], "must be an array of {\"at\": \"HH:MM[:SS]\", ...} objects");
     } else {
       static const std::vector<std::string> days = {"mon", "tue", "wed", "thu", "fri", "sat", "sun"};
       for (std::size_t i = 0; i < j["calendar"].size(); ++i) {
@@ -268,11 +275,11 @@ void load_reset_schedule(const json& j, DaemonConfig& config, Checker& c) {
         if (!c.object(e, k, {"at", "days", "zero_window_s"})) continue;
         CalendarReset cr;
         if (!e.contains("at")) {
-          c.fail(k + ".at", "is required (a UTC time of day, \"HH:MM\")");
+          c.fail(k + ".at", "is required (a UTC time of day, \"HH:MM\" or \"HH:MM:SS\")");
         } else {
           std::string t;
-          if (c.text(e["at"], k + ".at", t) && !parse_time_of_day(t, cr.minute_of_day))
-            c.fail(k + ".at", e["at"], "must be a UTC time of day \"HH:MM\" (00:00 to 23:59)");
+          if (c.text(e["at"], k + ".at", t) && !parse_time_of_day(t, cr.second_of_day))
+            c.fail(k + ".at", e["at"], "must be a UTC time of day \"HH:MM\" or \"HH:MM:SS\" (00:00 to 23:59:59)");
         }
         if (e.contains("days")) {
           if (!e["days"].is_array() || e["days"].empty()) {

@@ -47,7 +47,7 @@ const char* to_string(ProtocolVariant v);
 // One calendar reset: at a UTC time of day on the listed weekdays (all when
 // empty), optionally followed by a zero-window measurement of zero_window_s.
 struct CalendarReset {
-  int minute_of_day = 0;          // 0..1439, UTC
+  int second_of_day = 0;          // 0..86399, UTC
   std::array<bool, 7> weekdays{};  // [0] = Monday; all false = every day
   double zero_window_s = 0.0;
 };
@@ -62,7 +62,7 @@ struct ResetSchedule {
   bool operator==(const ResetSchedule&) const = default;
 };
 inline bool operator==(const CalendarReset& a, const CalendarReset& b) {
-  return a.minute_of_day == b.minute_of_day && a.weekdays == b.weekdays && a.zero_window_s == b.zero_window_s;
+  return a.second_of_day == b.second_of_day && a.weekdays == b.weekdays && a.zero_window_s == b.zero_window_s;
 }
 
 // A span the user marks quiet (input at zero) so the drift baseline may use it.

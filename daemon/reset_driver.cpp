@@ -52,7 +52,7 @@ chain::ResetScheduleSettings scheduler_settings(const ResetSchedule& schedule) {
     s.rearm_fraction = *schedule.threshold_fraction - schedule.threshold_hysteresis;
   for (const CalendarReset& c : schedule.calendar) {
     chain::CalendarEntry e;
-    e.second_of_day_utc = c.minute_of_day * 60;
+    e.second_of_day_utc = c.second_of_day;
     std::uint8_t mask = 0;
     for (std::size_t d = 0; d < 7; ++d)
       if (c.weekdays[d]) mask = std::uint8_t(mask | (1u << d));
@@ -240,7 +240,9 @@ nlohmann::json ResetDriver::status() const {
   static const char* days[] = {"mon", "tue", "wed", "thu", "fri", "sat", "sun"};
   for (const CalendarReset& c : schedule_.calendar) {
     char at[32];
-    std::snprintf(at, sizeof at, "%02d:%02d", c.minute_of_day / 60, c.minute_of_day % 60);
+    const int h = c.second_of_day / 3600, m = c.second_of_day / 60 % 60, s = c.second_of_day % 60;
+    if (s) std::snprintf(at, sizeof at, "%02d:%02d:%02d", h, m, s);
+    else std::snprintf(at, sizeof at, "%02d:%02d", h, m);
     json d = json::array();
     for (std::size_t k = 0; k < 7; ++k)
       if (c.weekdays[k]) d.push_back(days[k]);

@@ -67,6 +67,10 @@ TEST_CASE("options: each error kind names the key, the value and the reason") {
       {R"({ "reset_schedule": { "calendar": [ {} ] } })", "reset_schedule.calendar[0].at", "", "is required"},
       {R"({ "reset_schedule": { "calendar": [ {"at": "24:00"} ] } })", "reset_schedule.calendar[0].at", "\"24:00\"",
        "HH:MM"},
+      {R"({ "reset_schedule": { "calendar": [ {"at": "03:30:60"} ] } })", "reset_schedule.calendar[0].at",
+       "\"03:30:60\"", "HH:MM:SS"},
+      {R"({ "reset_schedule": { "calendar": [ {"at": "03:30:5"} ] } })", "reset_schedule.calendar[0].at",
+       "\"03:30:5\"", "HH:MM:SS"},
       {R"({ "reset_schedule": { "calendar": [ {"at": "03:00", "days": ["monday"]} ] } })",
        "reset_schedule.calendar[0].days[0]", "\"monday\"", "must be mon, tue"},
       {R"({ "reset_schedule": { "calendar": [ {"at": "03:00", "days": []} ] } })", "reset_schedule.calendar[0].days",
@@ -190,7 +194,7 @@ TEST_CASE("options: the shipped example config is valid and sets what it documen
   REQUIRE(config.reset_schedule.interval_s);
   CHECK(*config.reset_schedule.interval_s == 120.0);
   REQUIRE(config.reset_schedule.calendar.size() == 1);
-  CHECK(config.reset_schedule.calendar[0].minute_of_day == 3 * 60 + 30);
+  CHECK(config.reset_schedule.calendar[0].second_of_day == (3 * 60 + 30) * 60);
   CHECK(config.reset_schedule.calendar[0].weekdays[0]);   // Monday
   CHECK_FALSE(config.reset_schedule.calendar[0].weekdays[1]);
   REQUIRE(config.zero_windows.size() == 1);

@@ -24,12 +24,14 @@ using Rig = ResetRig;
 TEST_CASE("reset driver: the config's schedule maps onto the scheduler's settings", "[daemon][schedule]") {
   const auto s = scheduler_settings(schedule_from(R"({"reset_schedule": {
       "interval_s": 120, "threshold_fraction": 0.8, "threshold_hysteresis": 0.1,
-      "calendar": [{"at": "03:30", "days": ["mon", "sun"], "zero_window_s": 60}, {"at": "23:59"}]}})"));
+      "calendar": [{"at": "03:30", "days": ["mon", "sun"], "zero_window_s": 60}, {"at": "23:59"},
+                   {"at": "12:00:45"}]}})"));
   CHECK(s.interval_s == 120.0);
   CHECK(s.threshold_fraction == 0.8);
   CHECK(s.rearm_fraction == Approx(0.7));  // re-armed 0.1 of full scale below the threshold
   CHECK(s.full_scale_v == 1.0);            // the driver passes levels as fractions of full scale
-  REQUIRE(s.calendar.size() == 2);
+  REQUIRE(s.calendar.size() == 3);
+  CHECK(s.calendar[2].second_of_day_utc == 12 * 3600 + 45);  // seconds when given
   CHECK(s.calendar[0].second_of_day_utc == 3 * 3600 + 30 * 60);
   CHECK(s.calendar[0].weekdays == 0x41);  // bit 0 Monday, bit 6 Sunday
   CHECK(s.calendar[0].zero_window_s == 60.0);
@@ -299,4 +301,22 @@ TEST_CASE("reset driver: an operator command beyond the pending limit is not sen
   CHECK(rig.driver.counters().operator_not_sent == 1);
   CHECK(rig.driver.counters().operator_commands == 32);
   CHECK(rig.driver.counters().commanded == 0);
+}
+
+TEST_CASE("reset driver: a calendar time with seconds resets at that second", "[daemon][schedule]") {
+  // The rig's blocks start at 1796169600 s, a midnight UTC (1796169600 / 86400 = 20789 exactly).
+  Rig rig(schedule_from(R"({"reset_schedule": {"calendar": [{"at": "00:00:05"}]}})"));
+  CHECK(rig.driver.status()["policy"]["calendar"][0]["at"] == "00:00:05");
+  const auto calendar_resets = [&] {
+    int n = 0;
+    for (const auto& e : rig.events)
+      n += e.kind == "reset_commanded" && e.detail.find("reason=calendar") != std::string::npos;
+    return n;
+  };
+  for (int k = 0; k < 49; ++k) rig.block(0.1);  // board time up to 4.9 s
+  CHECK(calendar_resets() == 0);
+  REQUIRE(rig.driver.status()["next_reset"].is_object());
+  CHECK(rig.driver.status()["next_reset"]["why"] == "calendar");
+  for (int k = 0; k < 2; ++k) rig.block(0.1);  // past 5 s
+  CHECK(calendar_resets() == 1);
 }
