@@ -130,7 +130,8 @@ Status StoreQueries::raw_page(std::int64_t run_id, int channel, std::uint64_t st
     }
   }
   if (calibration_id < 0) return Status::success();  // no series for this channel here: nothing to convert with
-  chain::AdcCalibration adc;
+  std::int32_t zero_code = 0;
+  double volts_per_code = 0.0;  // once per page, not per sample
   {
     Statement ct;
     if (Status s = db_->prepare("SELECT quantity, unit, definition FROM calibration WHERE calibration_id = ?", ct);
@@ -144,7 +145,8 @@ Status StoreQueries::raw_page(std::int64_t run_id, int channel, std::uint64_t st
     out.unit = ct.column_text(1);
     const auto cal = storage::calibration_from_definition(ct.column_text(2));
     if (!cal) return Status::error(SQLITE_CORRUPT, "calibration " + std::to_string(calibration_id) + " is unreadable");
-    adc = cal->adc;
+    zero_code = cal->adc.zero_code;
+    volts_per_code = cal->adc.volts_per_code();
   }
 
   // The blocks from the one holding `begin` to `end`, decoded one at a time.
@@ -190,7 +192,8 @@ Status StoreQueries::raw_page(std::int64_t run_id, int channel, std::uint64_t st
     const std::uint64_t k1 = std::min<std::uint64_t>(samples, end - first + 1);
     for (std::uint64_t k = k0; k < k1; ++k) {
       const std::uint64_t index = first + k;
-      const double v = adc.to_volts(codes[std::size_t(k) * std::size_t(channels) + std::size_t(channel)]);
+      const std::int32_t code = codes[std::size_t(k) * std::size_t(channels) + std::size_t(channel)];
+      const double v = double(code - zero_code) * volts_per_code;  // AdcCalibration::to_volts
       const std::uint64_t bucket_first = index / B * B;
       if (out.buckets.empty() || out.buckets.back().first_index != bucket_first) {
         close_bucket();

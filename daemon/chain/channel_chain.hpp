@@ -93,6 +93,7 @@ class ChannelChain {
  private:
   enum class Mode { dead, settling, live };
   void enter_dead(bool zero_window);
+  // AdcCalibration::to_volts with volts_per_code_ computed once (it is per sample).
   double to_volts(std::int32_t code) const { return double(code - calibration_.adc.zero_code) * volts_per_code_; }
   // Every sample goes into the open series bucket.
   void add_to_series(std::uint64_t index, double v, ChainOutput& out);
